@@ -1,0 +1,109 @@
+"""The knobline command line: output, JSON, exit codes, no tracebacks for user mistakes."""
+
+from __future__ import annotations
+
+import json
+import subprocess
+import sys
+from pathlib import Path
+
+import pytest
+from click.testing import CliRunner
+
+from fixture.cli import main
+from fixture.files.design_file import load_design
+
+DEMO = Path("sequences/demo-panel.toml")
+
+
+@pytest.fixture()
+def run():
+    runner = CliRunner()
+
+    def invoke(*args: str):
+        return runner.invoke(main, list(args), catch_exceptions=False)
+
+    return invoke
+
+
+def test_start_up_states_the_safety_caution(run) -> None:
+    result = run("info")
+    assert result.exit_code == 0
+    assert "does not verify electrical safety or isolation" in result.stderr
+    assert "hipot" in result.stderr and "leakage" in result.stderr
+
+
+def test_limits_json_has_a_row_per_stop_and_quantity_with_nominal_low_high(run) -> None:
+    result = run("limits", "--method", "rss", "--samples", "2000", "--json")
+    assert result.exit_code == 0, result.stderr
+    data = json.loads(result.stdout)
+    design = load_design(DEMO)
+    expected_rows = 2 * len(design.knobs["a"].stops_pct) + len(design.knobs["b"].stops_pct)
+    assert len(data["rows"]) == expected_rows
+    for row in data["rows"]:
+        assert row["low"] < row["nominal"] < row["high"]
+        assert row["quantity"] in ("frequency_hz", "period_s", "duty_pct")
+    assert data["design"]["sha256"] == design.content_sha256
+    assert data["monte_carlo"]["samples"] == 2000
+
+
+def test_limits_help_spells_out_the_json_keys(run) -> None:
+    result = run("limits", "--help")
+    for key in ("nominal", "low", "high", "tolerance_low", "predicted_yield", "contributors"):
+        assert key in result.stdout
+
+
+def test_predict_prints_the_models_nominal_signal(run) -> None:
+    result = run("predict", "--knob-a", "25", "--knob-b", "90", "--json")
+    assert result.exit_code == 0, result.stderr
+    data = json.loads(result.stdout)
+    design = load_design(DEMO)
+    signal = design.signal(design.nominal_values(), 25, 90)
+    assert data["period_s"] == pytest.approx(float(signal.period_s))
+    assert data["duty_pct"] == pytest.approx(100 * float(signal.duty))
+
+
+def test_knob_position_outside_the_rotation_is_a_usage_error(run) -> None:
+    result = run("predict", "--knob-a", "120", "--knob-b", "50")
+    assert result.exit_code == 2
+    assert "expected 0..100 % of rotation, found 120" in result.stderr
+
+
+def test_bad_design_file_exits_2_with_one_line_and_no_traceback(run, tmp_path: Path) -> None:
+    bad = tmp_path / "bad.toml"
+    bad.write_text(DEMO.read_text(encoding="utf-8").replace('value = "22k"', 'value = "-22k"'), encoding="utf-8")
+    result = run("limits", str(bad))
+    assert result.exit_code == 2
+    errors = [ln for ln in result.stderr.splitlines() if ln.startswith("knobline: error:")]
+    assert errors == [f"knobline: error: {bad}: parts.r_schmitt_fb.value: expected a value above zero, "
+                      "found '-22k'"]
+    assert "Traceback" not in result.stderr + result.stdout
+
+
+def test_check_accepts_the_demo_design(run) -> None:
+    result = run("check", "--json")
+    assert result.exit_code == 0
+    assert json.loads(result.stdout)["model"] == "integrator-schmitt"
+
+
+def test_plot_writes_an_svg(run, tmp_path: Path) -> None:
+    out = tmp_path / "limits.svg"
+    result = run("limits", "--method", "rss", "--samples", "500", "--plot", str(out))
+    assert result.exit_code == 0, result.stderr
+    assert out.read_text(encoding="utf-8").lstrip().startswith(("<?xml", "<svg"))
+
+
+def test_plot_refuses_a_non_svg_name(run, tmp_path: Path) -> None:
+    result = run("limits", "--method", "rss", "--samples", "500", "--plot", str(tmp_path / "x.png"))
+    assert result.exit_code == 2
+    assert "expected a file name ending in .svg" in result.stderr
+
+
+def test_installed_command_reports_bad_input_without_a_traceback(tmp_path: Path) -> None:
+    bad = tmp_path / "bad.toml"
+    bad.write_text("[product\n", encoding="utf-8")
+    proc = subprocess.run([sys.executable, "-m", "fixture.cli", "check", str(bad)], capture_output=True,
+                          text=True, timeout=60)
+    assert proc.returncode == 2
+    assert "expected valid TOML" in proc.stderr
+    assert "Traceback" not in proc.stderr
