@@ -1,0 +1,78 @@
+"""Promises the repository makes about itself: README, CI, packaging, layering."""
+
+from __future__ import annotations
+
+import ast
+import re
+import subprocess
+import sys
+import zipfile
+from pathlib import Path
+
+import pytest
+
+ROOT = Path(__file__).resolve().parent.parent
+
+
+def quick_start_lines() -> list[str]:
+    readme = (ROOT / "README.md").read_text(encoding="utf-8")
+    section = readme.split("## Quick start", 1)[1]
+    block = re.search(r"```[^\n]*\n(.*?)```", section, re.S)
+    assert block, "README Quick start has no fenced block"
+    return [ln for ln in block.group(1).splitlines() if ln.strip()]
+
+
+def test_readme_quick_start_is_exactly_two_command_lines() -> None:
+    lines = quick_start_lines()
+    assert len(lines) == 2
+    assert "knobline" in lines[0] and "pytest" in lines[1]
+
+
+def test_ci_runs_the_readme_test_command_verbatim() -> None:
+    ci = (ROOT / ".ci" / "run").read_text(encoding="utf-8").splitlines()
+    assert quick_start_lines()[1] in [ln.strip() for ln in ci]
+
+
+def test_readme_states_the_safety_caution() -> None:
+    readme = (ROOT / "README.md").read_text(encoding="utf-8")
+    assert "does not verify electrical safety or isolation" in readme
+
+
+# Rooms import downward only (DEVELOPERS.md). model/ is pure: numpy, stdlib, errors.
+ALLOWED = {
+    "model": {"fixture.model", "fixture.errors"},
+    "files": {"fixture.files", "fixture.model", "fixture.errors"},
+    "reporting": {"fixture.reporting", "fixture.model", "fixture.errors"},
+}
+
+
+@pytest.mark.parametrize("room", sorted(ALLOWED))
+def test_rooms_import_only_downward(room: str) -> None:
+    offenders = []
+    for path in (ROOT / "fixture" / room).rglob("*.py"):
+        tree = ast.parse(path.read_text(encoding="utf-8"))
+        for node in ast.walk(tree):
+            names = []
+            if isinstance(node, ast.Import):
+                names = [a.name for a in node.names]
+            elif isinstance(node, ast.ImportFrom) and node.module and node.level == 0:
+                names = [node.module]
+            for name in names:
+                if name.startswith("fixture") and not any(name == a or name.startswith(a + ".")
+                                                          for a in ALLOWED[room]):
+                    offenders.append(f"{path.relative_to(ROOT)} imports {name}")
+                if room == "model" and name.split(".")[0] in {"scipy", "pyvisa", "sqlalchemy", "jinja2",
+                                                              "matplotlib", "click"}:
+                    offenders.append(f"{path.relative_to(ROOT)} imports {name} (model/ is numpy + stdlib)")
+    assert offenders == []
+
+
+def test_wheel_carries_the_shipped_designs_and_report_templates(tmp_path: Path) -> None:
+    pytest.importorskip("hatchling")
+    subprocess.run([sys.executable, "-m", "pip", "wheel", "--no-deps", "--no-build-isolation", "-q",
+                    "-w", str(tmp_path), str(ROOT)], check=True, timeout=300)
+    wheel = next(tmp_path.glob("knobline-*.whl"))
+    names = zipfile.ZipFile(wheel).namelist()
+    assert "fixture/_data/sequences/demo-panel.toml" in names
+    assert any(n.startswith("fixture/_data/reports/") for n in names)
+    assert "fixture/cli.py" in names
