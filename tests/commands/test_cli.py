@@ -107,3 +107,13 @@ def test_installed_command_reports_bad_input_without_a_traceback(tmp_path: Path)
     assert proc.returncode == 2
     assert "expected valid TOML" in proc.stderr
     assert "Traceback" not in proc.stderr
+
+
+def test_decode_recommends_a_scheme_per_knob_with_its_worst_error(run) -> None:
+    result = run("decode", "--json")
+    assert result.exit_code == 0, result.stderr
+    data = json.loads(result.stdout)
+    for knob in ("a", "b"):
+        schemes = data["knobs"][knob]["schemes"]
+        best = min(schemes, key=lambda s: s["max_abs_error_pct"])
+        assert data["knobs"][knob]["recommend"] == best["name"]

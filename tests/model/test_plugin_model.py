@@ -162,3 +162,14 @@ def test_plugin_evaluates_many_units_at_once() -> None:
               "knob_b_ccw_ohm": np.zeros(3), "knob_b_cw_ohm": np.zeros(3)}
     period = model.evaluate(values).period_s
     assert period == pytest.approx(math.log(2.0) * (r1 + 2e3) * 1e-6, rel=1e-12)
+
+
+def test_a_plug_in_module_that_fails_to_import_is_a_user_error_naming_the_cause(tmp_path, monkeypatch) -> None:
+    from fixture.errors import UserInputError
+    from fixture.model.circuits import find_model
+
+    (tmp_path / "broken_panel_model.py").write_text("def oops(:\n", encoding="utf-8")
+    monkeypatch.syspath_prepend(str(tmp_path))
+    with pytest.raises(UserInputError, match=r"expected an importable module 'broken_panel_model', "
+                                             r"found SyntaxError"):
+        find_model("broken_panel_model:Model")
