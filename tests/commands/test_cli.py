@@ -117,3 +117,28 @@ def test_decode_recommends_a_scheme_per_knob_with_its_worst_error(run) -> None:
         schemes = data["knobs"][knob]["schemes"]
         best = min(schemes, key=lambda s: s["max_abs_error_pct"])
         assert data["knobs"][knob]["recommend"] == best["name"]
+
+
+def test_limits_carry_uncertainty_tur_and_acceptance_limits_with_the_rule_sentence(run) -> None:
+    result = run("limits", "--method", "rss", "--samples", "1000", "--json")
+    data = json.loads(result.stdout)
+    assert "ILAC-G8" in data["decision_rule"]
+    for row in data["rows"]:
+        m = row["measurement"]
+        assert m["expanded_uncertainty"] > 0 and m["tur"] > 0
+        assert row["tolerance_low"] < m["acceptance_low"] < m["acceptance_high"] < row["tolerance_high"]
+
+
+def test_rule_override_simple_accepts_up_to_the_tolerance_limits(run) -> None:
+    result = run("limits", "--method", "rss", "--samples", "1000", "--rule", "simple", "--json")
+    row = json.loads(result.stdout)["rows"][0]
+    assert row["measurement"]["acceptance_low"] == row["tolerance_low"]
+
+
+def test_gate_time_override_needs_a_counter_station(run, tmp_path: Path) -> None:
+    station = tmp_path / "scope.toml"
+    station.write_text(Path("sequences/demo-station.toml").read_text(encoding="utf-8").replace(
+        'instrument = "counter"', 'instrument = "scope"'), encoding="utf-8")
+    result = run("limits", "--station", str(station), "--gate-time", "0.1")
+    assert result.exit_code == 2
+    assert "--gate-time: expected a counter station, found a scope station" in result.stderr
