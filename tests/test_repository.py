@@ -76,3 +76,10 @@ def test_wheel_carries_the_shipped_designs_and_report_templates(tmp_path: Path) 
     assert "fixture/_data/sequences/demo-panel.toml" in names
     assert any(n.startswith("fixture/_data/reports/") for n in names)
     assert "fixture/cli.py" in names
+
+
+def test_code_passes_the_linter() -> None:
+    pytest.importorskip("ruff")
+    proc = subprocess.run([sys.executable, "-m", "ruff", "check", "fixture", "tests", "bench"], cwd=ROOT,
+                          capture_output=True, text=True, timeout=120)
+    assert proc.returncode == 0, proc.stdout + proc.stderr

@@ -142,3 +142,9 @@ def test_gate_time_override_needs_a_counter_station(run, tmp_path: Path) -> None
     result = run("limits", "--station", str(station), "--gate-time", "0.1")
     assert result.exit_code == 2
     assert "--gate-time: expected a counter station, found a scope station" in result.stderr
+
+
+def test_plot_to_an_unwritable_place_is_a_usage_error(run, tmp_path: Path) -> None:
+    result = run("limits", "--method", "rss", "--samples", "500", "--plot", str(tmp_path / "no" / "dir.svg"))
+    assert result.exit_code == 2
+    assert "--plot: expected a writable file" in result.stderr

@@ -9,25 +9,18 @@ import pytest
 from fixture.errors import FileFormatError
 from fixture.files.design_file import load_design
 from fixture.files.toml_reader import FileProblems
+from tests.files.edits import edited_copy
+from tests.files.edits import only_problem as one_line
 
 DEMO = Path("sequences/demo-panel.toml")
 
 
 def variant(tmp_path: Path, old: str, new: str) -> Path:
-    """The demo design with one edit, written to a temporary file."""
-    text = DEMO.read_text(encoding="utf-8")
-    assert old in text, f"test setup: {old!r} not in the demo design"
-    path = tmp_path / "variant.toml"
-    path.write_text(text.replace(old, new, 1), encoding="utf-8")
-    return path
+    return edited_copy(DEMO, tmp_path, old, new)
 
 
 def only_problem(path: Path) -> str:
-    with pytest.raises(FileProblems) as info:
-        load_design(path)
-    lines = str(info.value).splitlines()
-    assert len(lines) == 1, lines
-    return lines[0]
+    return one_line(load_design, path)
 
 
 def test_demo_design_loads_with_every_part_and_both_knobs() -> None:
@@ -41,7 +34,7 @@ def test_demo_design_loads_with_every_part_and_both_knobs() -> None:
 
 def test_unknown_key_is_reported_with_its_key_path(tmp_path: Path) -> None:
     line = only_problem(variant(tmp_path, 'tolerance = "5%"', 'tolerence = "5%"'))
-    assert line.startswith(f"{tmp_path / 'variant.toml'}: parts.c_integrator.tolerence: expected one of the keys")
+    assert line.startswith(f"{tmp_path / 'demo-panel.toml'}: parts.c_integrator.tolerence: expected one of the keys")
     assert line.endswith("found an unknown key")
 
 

@@ -7,25 +7,18 @@ from pathlib import Path
 import pytest
 
 from fixture.files.station_file import load_station
-from fixture.files.toml_reader import FileProblems
+from tests.files.edits import edited_copy
+from tests.files.edits import only_problem as one_line
 
 DEMO = Path("sequences/demo-station.toml")
 
 
 def variant(tmp_path: Path, old: str, new: str) -> Path:
-    text = DEMO.read_text(encoding="utf-8")
-    assert old in text, f"test setup: {old!r} not in the demo station"
-    path = tmp_path / "station.toml"
-    path.write_text(text.replace(old, new, 1), encoding="utf-8")
-    return path
+    return edited_copy(DEMO, tmp_path, old, new)
 
 
 def only_problem(path: Path) -> str:
-    with pytest.raises(FileProblems) as info:
-        load_station(path)
-    lines = str(info.value).splitlines()
-    assert len(lines) == 1, lines
-    return lines[0]
+    return one_line(load_station, path)
 
 
 def test_demo_station_reads_counter_figures_in_si_units() -> None:

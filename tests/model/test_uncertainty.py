@@ -150,7 +150,7 @@ def test_counter_resolution_term_falls_as_one_over_n():
         terms.append(component(budget, "resolution").standard_uncertainty)
     assert ns == sorted(ns) and len(set(ns)) == len(ns)
     # ±1 count on an N-period interval: a = resolution / N, rectangular (GUM 4.3.7).
-    for n, term in zip(ns, terms):
+    for n, term in zip(ns, terms, strict=True):
         assert term == pytest.approx(COUNTER.resolution_s / (math.sqrt(3) * n), rel=1e-12)
     assert terms[0] / terms[-1] == pytest.approx(ns[-1] / ns[0], rel=1e-12)
 
