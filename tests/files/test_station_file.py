@@ -4,8 +4,11 @@ from __future__ import annotations
 
 from pathlib import Path
 
+import datetime
+
 import pytest
 
+from fixture.errors import CalibrationExpired
 from fixture.files.station_file import load_station
 from tests.files.edits import edited_copy
 from tests.files.edits import only_problem as one_line
@@ -22,7 +25,7 @@ def only_problem(path: Path) -> str:
 
 
 def test_demo_station_reads_counter_figures_in_si_units() -> None:
-    setup = load_station(DEMO)
+    setup = load_station(DEMO).measurement
     assert setup.instrument == "counter"
     assert setup.counter is not None
     assert setup.counter.timebase_error == pytest.approx(1e-6)
@@ -34,7 +37,7 @@ def test_demo_station_reads_counter_figures_in_si_units() -> None:
 
 
 def test_scope_station_reads_the_sample_rate(tmp_path: Path) -> None:
-    setup = load_station(variant(tmp_path, 'instrument = "counter"', 'instrument = "scope"'))
+    setup = load_station(variant(tmp_path, 'instrument = "counter"', 'instrument = "scope"')).measurement
     assert setup.instrument == "scope" and setup.scope is not None
     assert setup.scope_sample_rate_hz == pytest.approx(10e6)
     assert setup.scope.vertical_resolution_v == pytest.approx(62.5e-3)
@@ -58,3 +61,44 @@ def test_unknown_decision_rule_lists_the_choices(tmp_path: Path) -> None:
 def test_value_in_the_wrong_unit_is_refused(tmp_path: Path) -> None:
     line = only_problem(variant(tmp_path, 'overhead = "20 ms"', 'overhead = "20 mV"'))
     assert "measurement.overhead: expected a value in s" in line
+
+
+def test_demo_station_maps_every_role_to_a_resource_and_profile() -> None:
+    config = load_station(DEMO)
+    assert set(config.instruments) == {"counter", "scope", "supply", "actuator"}
+    for entry in config.instruments.values():
+        assert entry.resource and entry.profile and entry.simulated
+    assert config.instruments["counter"].calibration.due == datetime.date(2027, 4, 30)
+    assert config.instruments["actuator"].options["knob_a_travel_deg"] == 270.0
+
+
+def test_testing_with_an_expired_instrument_is_refused(tmp_path: Path) -> None:
+    config = load_station(DEMO)
+    with pytest.raises(CalibrationExpired, match="TCL-26-03981 was due 2027-02-28"):
+        config.require_calibrated(datetime.date(2027, 3, 1))
+    assert config.require_calibrated(datetime.date(2027, 2, 28)) == []  # due day itself is still in
+
+
+def test_an_allowed_expired_instrument_is_returned_for_the_record(tmp_path: Path) -> None:
+    config = load_station(variant(tmp_path, "allow_expired_calibration = false", "allow_expired_calibration = true"))
+    expired = config.require_calibrated(datetime.date(2027, 5, 1))
+    assert sorted(s.role for s in expired) == ["counter", "scope", "supply"]
+    assert all(s.allowed for s in expired)
+
+
+def test_due_date_must_be_a_toml_date(tmp_path: Path) -> None:
+    line = only_problem(variant(tmp_path, "due = 2027-04-30\nlab", 'due = "next spring"\nlab'))
+    assert "instruments.counter.calibration.due: expected a TOML date such as 2027-03-31" in line
+
+
+def test_a_visa_instrument_needs_a_resource(tmp_path: Path) -> None:
+    line = only_problem(variant(tmp_path, 'resource = "TCPIP0::sim-supply::inst0::INSTR"\n', ""))
+    assert "instruments.supply.resource: expected a non-empty string, found nothing" in line
+
+
+def test_a_manual_actuator_needs_no_resource(tmp_path: Path) -> None:
+    path = variant(tmp_path, 'kind = "motorized"', 'kind = "manual"')
+    text = path.read_text(encoding="utf-8").replace('resource = "TCPIP0::sim-actuator::inst0::INSTR"\n', "")
+    path.write_text(text, encoding="utf-8")
+    entry = load_station(path).instruments["actuator"]
+    assert entry.backend == "manual" and entry.resource == ""

@@ -21,7 +21,7 @@ from fixture.model.uncertainty import CounterSettings, counter_budget
 def demo():
     design = load_design("sequences/demo-panel.toml")
     table = compute_limits(design, method="rss", mc_options=McOptions(samples=1000))
-    return design, table, load_station("sequences/demo-station.toml")
+    return design, table, load_station("sequences/demo-station.toml").measurement
 
 
 def test_guarded_acceptance_narrows_each_tolerance_limit_by_u(demo) -> None:
@@ -71,7 +71,7 @@ def test_scope_station_measures_every_row(demo, tmp_path) -> None:
         'instrument = "counter"', 'instrument = "scope"')
     path = tmp_path / "scope.toml"
     path.write_text(text, encoding="utf-8")
-    measured = measure_table(table, load_station(path))
+    measured = measure_table(table, load_station(path).measurement)
     assert len(measured) == len(table.rows)
     assert all(m.expanded_u > 0 and m.setting.startswith("record ") for m in measured.values())
 
