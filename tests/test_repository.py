@@ -43,13 +43,18 @@ ALLOWED = {
     "model": {"fixture.model", "fixture.errors"},
     "files": {"fixture.files", "fixture.model", "fixture.errors"},
     "reporting": {"fixture.reporting", "fixture.model", "fixture.errors"},
+    "instruments": {"fixture.instruments", "fixture.files", "fixture.model", "fixture.errors"},
+    "sim": {"fixture.sim", "fixture.instruments", "fixture.files", "fixture.model", "fixture.errors"},
 }
 
 
 @pytest.mark.parametrize("room", sorted(ALLOWED))
 def test_rooms_import_only_downward(room: str) -> None:
     offenders = []
-    for path in (ROOT / "fixture" / room).rglob("*.py"):
+    folder = ROOT / "fixture" / room
+    if not folder.is_dir():
+        pytest.skip(f"fixture/{room} does not exist yet")
+    for path in folder.rglob("*.py"):
         tree = ast.parse(path.read_text(encoding="utf-8"))
         for node in ast.walk(tree):
             names = []
