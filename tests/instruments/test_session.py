@@ -1,0 +1,176 @@
+"""Sessions: retries only where safe and bounded, the error queue, *IDN? checks, faults named, lifecycle."""
+
+from __future__ import annotations
+
+import pytest
+
+from fixture.errors import (
+    ConnectionLost,
+    InstrumentErrorQueue,
+    InstrumentTimeout,
+    OverflowReading,
+    SoftwareFault,
+    UnparsableReply,
+    UserInputError,
+    WrongInstrument,
+)
+from fixture.instruments import SessionState
+from fixture.instruments.session import MAX_ERROR_READS
+
+from .fakes import IDN, FakeInstrument, scripted_session, sequence
+
+COUNTER = "tessaly-fc3120"
+
+
+def test_flaky_idempotent_query_succeeds_on_retry_within_the_bound() -> None:
+    # FETCh? only returns the last reading, so asking again is safe (SCPI-1999, from memory).
+    fake = FakeInstrument({"FETC:PER?": sequence(None, None, "1.0E-03")})  # two timeouts, then a reply
+    session, transport = scripted_session(COUNTER, fake, max_retries=2)
+    assert session.query_float("fetch_period") == 1.0e-3
+    assert transport.sent == ["FETC:PER?"] * 3
+    assert session.retries == 2
+
+
+def test_retry_bound_is_respected_and_named_in_the_fault() -> None:
+    fake = FakeInstrument({"FETC:PER?": sequence(None, None, None, "1.0E-03")})
+    session, transport = scripted_session(COUNTER, fake, max_retries=2)
+    with pytest.raises(InstrumentTimeout, match="after 3 attempts"):
+        session.query_float("fetch_period")
+    assert transport.sent == ["FETC:PER?"] * 3
+
+
+def test_retries_can_be_switched_off() -> None:
+    fake = FakeInstrument({"FETC:PER?": sequence(None, "1.0E-03")})
+    session, transport = scripted_session(COUNTER, fake, max_retries=0)
+    with pytest.raises(InstrumentTimeout):
+        session.query_float("fetch_period")
+    assert transport.sent == ["FETC:PER?"]
+
+
+def test_garbled_reply_to_an_idempotent_query_is_retried() -> None:
+    fake = FakeInstrument({"*IDN?": sequence("TESSALY INSTRU", IDN[COUNTER])})
+    session, transport = scripted_session(COUNTER, fake)
+    assert session.identify().model == "FC-3120"
+    assert transport.sent == ["*IDN?", "*IDN?"]
+
+
+def test_error_queue_query_is_never_retried() -> None:
+    # Each SYSTem:ERRor? read removes an entry (SCPI-1999, from memory): a retry could lose an error.
+    session, transport = scripted_session(COUNTER, lambda text: None)
+    with pytest.raises(InstrumentTimeout):
+        session.read_errors()
+    assert transport.sent == ["SYST:ERR?"]
+
+
+def test_a_write_is_never_retried() -> None:
+    def handler(text: str) -> None:
+        raise ConnectionLost("TCPIP0::fake::inst0::INSTR: socket closed")
+
+    session, transport = scripted_session(COUNTER, handler)
+    with pytest.raises(ConnectionLost):
+        session.write("initiate")
+    assert transport.sent == ["INIT"]
+
+
+def test_overflow_is_an_answer_and_not_retried() -> None:
+    fake = FakeInstrument({"FETC:FREQ?": "9.91E+37"})
+    session, transport = scripted_session(COUNTER, fake)
+    with pytest.raises(OverflowReading, match=r"FETC:FREQ\?: .*9.91E\+37"):
+        session.query_float("fetch_frequency")
+    assert transport.sent == ["FETC:FREQ?"]
+
+
+def test_lost_connection_is_not_retried() -> None:
+    def handler(text: str) -> None:
+        raise ConnectionLost("TCPIP0::fake::inst0::INSTR: connection lost")
+
+    session, transport = scripted_session(COUNTER, handler)
+    with pytest.raises(ConnectionLost, match=r"counter TCPIP0::fake::inst0::INSTR: FETC:PER\?: connection lost"):
+        session.query_float("fetch_period")
+    assert transport.sent == ["FETC:PER?"]
+
+
+def test_unparsable_reply_names_instrument_and_command() -> None:
+    fake = FakeInstrument({"FETC:PER?": "1.0E-03 s"})
+    session, _ = scripted_session(COUNTER, fake, max_retries=0)
+    with pytest.raises(UnparsableReply, match=r"counter TCPIP0::fake::inst0::INSTR: FETC:PER\?: expected a number"):
+        session.query_float("fetch_period")
+
+
+def test_non_empty_error_queue_raises_with_every_error() -> None:
+    fake = FakeInstrument(errors=('-100,"Command error"', '-222,"Data out of range"'))
+    session, _ = scripted_session(COUNTER, fake)
+    with pytest.raises(InstrumentErrorQueue) as info:
+        session.check_errors("configuring period")
+    assert 'after configuring period: -100,"Command error"; -222,"Data out of range"' in info.value.message
+
+
+def test_empty_error_queue_passes() -> None:
+    session, transport = scripted_session(COUNTER, FakeInstrument())
+    session.check_errors()
+    assert transport.sent == ["SYST:ERR?"]
+
+
+def test_plain_zero_also_ends_the_error_queue() -> None:
+    session, _ = scripted_session(COUNTER, FakeInstrument({"SYST:ERR?": '0,"No error"'}))
+    assert session.read_errors() == []
+
+
+def test_an_error_queue_that_never_empties_is_read_a_bounded_number_of_times() -> None:
+    session, transport = scripted_session(COUNTER, lambda text: '-350,"Queue overflow"')
+    with pytest.raises(InstrumentErrorQueue, match=f"still not empty after {MAX_ERROR_READS} reads"):
+        session.check_errors()
+    assert len(transport.sent) == MAX_ERROR_READS
+
+
+def test_identify_accepts_the_profiles_instrument_in_any_case() -> None:
+    fake = FakeInstrument({"*IDN?": "Tessaly Instruments,fc-3120,TS26A0117,1.4.2"})
+    session, _ = scripted_session(COUNTER, fake)
+    ident = session.identify()
+    assert (ident.serial, ident.firmware) == ("TS26A0117", "1.4.2")
+    assert session.identity == ident
+
+
+@pytest.mark.parametrize("idn", ["TESSALY INSTRUMENTS,DS-1104,S1,1.0", "OTHER MAKER,FC-3120,S1,1.0"])
+def test_identify_refuses_another_instrument(idn: str) -> None:
+    session, _ = scripted_session(COUNTER, FakeInstrument({"*IDN?": idn}))
+    with pytest.raises(WrongInstrument, match="expected TESSALY INSTRUMENTS FC-3120"):
+        session.identify()
+
+
+def test_session_lifecycle_refuses_reuse_after_close() -> None:
+    session, transport = scripted_session(COUNTER, FakeInstrument())
+    assert session.state is SessionState.UNOPENED
+    with session:
+        assert session.state is SessionState.OPENED
+        with pytest.raises(SoftwareFault, match="already open"):
+            session.open()
+    assert session.state is SessionState.CLOSED
+    with pytest.raises(SoftwareFault, match="closed"):
+        session.check_errors()
+    with pytest.raises(SoftwareFault, match="cannot be reopened"):
+        session.open()
+    assert transport.sent == []
+
+
+def test_timeout_is_lengthened_for_a_slow_operation_and_restored() -> None:
+    session, transport = scripted_session(COUNTER, FakeInstrument())
+    transport.timeout_s = 2.0
+    with session.timeout_at_least(11.0):
+        assert transport.timeout_s == 11.0
+    assert transport.timeout_s == 2.0
+    with session.timeout_at_least(1.0):
+        assert transport.timeout_s == 2.0
+
+
+def test_writes_and_queries_cannot_be_mixed_up() -> None:
+    session, _ = scripted_session(COUNTER, FakeInstrument())
+    with pytest.raises(SoftwareFault):
+        session.write("fetch_period")
+    with pytest.raises(SoftwareFault):
+        session.query("initiate")
+
+
+def test_negative_retry_count_is_refused() -> None:
+    with pytest.raises(UserInputError):
+        scripted_session(COUNTER, FakeInstrument(), max_retries=-1)
