@@ -45,6 +45,8 @@ ALLOWED = {
     "reporting": {"fixture.reporting", "fixture.model", "fixture.errors"},
     "instruments": {"fixture.instruments", "fixture.files", "fixture.model", "fixture.errors"},
     "sim": {"fixture.sim", "fixture.instruments", "fixture.files", "fixture.model", "fixture.errors"},
+    "runner": {"fixture.runner", "fixture.sim", "fixture.instruments", "fixture.files", "fixture.model",
+               "fixture.errors"},
 }
 
 
@@ -81,6 +83,8 @@ def test_wheel_carries_the_shipped_designs_and_report_templates(tmp_path: Path) 
     assert "fixture/_data/sequences/demo-panel.toml" in names
     assert any(n.startswith("fixture/_data/reports/") for n in names)
     assert "fixture/cli.py" in names
+    assert "fixture/sim/devices/bench.yaml" in names
+    assert "fixture/instruments/profiles/tessaly-fc3120.toml" in names
 
 
 def test_code_passes_the_linter() -> None:

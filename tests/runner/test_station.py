@@ -1,0 +1,44 @@
+"""Opening the station from its file, on the simulated bench."""
+
+from __future__ import annotations
+
+import datetime as dt
+from pathlib import Path
+
+import pytest
+
+from fixture.errors import CalibrationExpired
+from fixture.files.station_file import load_station
+from fixture.runner.station import open_station
+
+TODAY = dt.date(2026, 12, 2)
+
+
+def test_demo_station_opens_every_role_and_identifies_it() -> None:
+    config = load_station("sequences/demo-station.toml")
+    with open_station(config, today=TODAY) as station:
+        assert set(station.drivers) == {"counter", "scope", "supply", "actuator"}
+        assert station.identities["counter"].model == "FC-3120"
+        assert station.simulated
+        assert station.expired_calibrations == []
+
+
+def test_an_expired_instrument_stops_the_station_before_anything_is_opened(monkeypatch) -> None:
+    config = load_station("sequences/demo-station.toml")
+    opened = []
+    monkeypatch.setattr("fixture.runner.station.open_instrument", lambda *a, **k: opened.append(a))
+    with pytest.raises(CalibrationExpired):
+        open_station(config, today=dt.date(2027, 3, 1))
+    assert opened == []
+
+
+def test_a_manual_actuator_asks_the_operator(tmp_path) -> None:
+    text = Path("sequences/demo-station.toml").read_text(encoding="utf-8").replace(
+        'kind = "motorized"', 'kind = "manual"')
+    path = tmp_path / "manual.toml"
+    path.write_text(text, encoding="utf-8")
+    asked: list[str] = []
+    with open_station(load_station(path), today=TODAY, roles=("actuator",),
+                      ask=lambda text: asked.append(text) or True) as station:
+        station.driver("actuator").move_both(25.0, 75.0)
+    assert asked and "25" in asked[0]
