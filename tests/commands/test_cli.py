@@ -148,3 +148,29 @@ def test_plot_to_an_unwritable_place_is_a_usage_error(run, tmp_path: Path) -> No
     result = run("limits", "--method", "rss", "--samples", "500", "--plot", str(tmp_path / "no" / "dir.svg"))
     assert result.exit_code == 2
     assert "--plot: expected a writable file" in result.stderr
+
+
+def test_station_identifies_every_instrument_of_the_simulated_bench(run) -> None:
+    result = run("station", "--on", "2026-12-02", "--json")
+    assert result.exit_code == 0, result.stderr
+    data = json.loads(result.stdout)
+    assert data["simulated"] is True
+    assert data["instruments"]["counter"]["identity"]["model"] == "FC-3120"
+
+
+def test_station_with_an_expired_instrument_is_a_station_fault(run) -> None:
+    result = run("station", "--on", "2027-03-15")
+    assert result.exit_code == 3
+    assert "knobline: station fault: scope" in result.stderr and "TCL-26-03981" in result.stderr
+
+
+def test_measure_on_the_simulated_bench_reads_the_simulated_units_own_signal(run) -> None:
+    from fixture.sim.dut import build_unit
+
+    result = run("measure", "--knob-a", "25", "--knob-b", "90", "--serial", "T-1", "--seed", "4", "--json")
+    assert result.exit_code == 0, result.stderr
+    data = json.loads(result.stdout)
+    truth = build_unit(load_design(DEMO), "T-1", seed=4).wave(25.0, 90.0)
+    assert data["frequency_hz"] == pytest.approx(1 / truth.period_s, rel=1e-4)
+    assert data["duty_pct"] == pytest.approx(100 * truth.duty, abs=0.1)
+    assert data["simulated_unit"] == {"serial": "T-1", "seed": 4}
