@@ -11,12 +11,11 @@ sample matrix.
 from __future__ import annotations
 
 import argparse
-import os
-import time
 import tracemalloc
 from pathlib import Path
 
 import numpy as np
+from timing import best_of, pin_to_one_core
 
 from fixture.files.design_file import load_design
 from fixture.model.quantities import DEFAULT_QUANTITIES
@@ -26,22 +25,12 @@ from fixture.model.tolerance.space import KnobSetting, ParameterSpace, knob_sett
 DEMO = Path(__file__).resolve().parent.parent / "sequences" / "demo-panel.toml"
 
 
-def best_of(repeats: int, fn) -> float:
-    times = []
-    for _ in range(repeats):
-        t = time.perf_counter()
-        fn()
-        times.append(time.perf_counter() - t)
-    return min(times)
-
-
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--samples", type=int, default=1_000_000)
     parser.add_argument("--repeats", type=int, default=3)
     args = parser.parse_args()
-    if hasattr(os, "sched_setaffinity"):
-        os.sched_setaffinity(0, {sorted(os.sched_getaffinity(0))[0]})
+    pin_to_one_core()
 
     design = load_design(DEMO)
     space = ParameterSpace(design, design.conditions["production"])

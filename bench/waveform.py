@@ -16,22 +16,13 @@ from __future__ import annotations
 
 import argparse
 import math
-import os
-import time
 
 import numpy as np
 
+from timing import best_of, pin_to_one_core
+
 from fixture.model.waveform import analyze_record
 from fixture.sim.records import Acquisition, RectangleWave, synthesize
-
-
-def best_of(repeats: int, fn) -> float:
-    times = []
-    for _ in range(repeats):
-        t = time.perf_counter()
-        fn()
-        times.append(time.perf_counter() - t)
-    return min(times)
 
 
 def speed(samples: int, repeats: int) -> None:
@@ -83,8 +74,7 @@ def main() -> None:
     parser.add_argument("--records", type=int, default=1000)
     parser.add_argument("--repeats", type=int, default=7)
     args = parser.parse_args()
-    if hasattr(os, "sched_setaffinity"):
-        os.sched_setaffinity(0, {sorted(os.sched_getaffinity(0))[0]})
+    pin_to_one_core()
     speed(args.samples, args.repeats)
     precision(args.records, 100)
 
