@@ -45,6 +45,7 @@ ALLOWED = {
     "reporting": {"fixture.reporting", "fixture.model", "fixture.errors"},
     "instruments": {"fixture.instruments", "fixture.files", "fixture.model", "fixture.errors"},
     "sim": {"fixture.sim", "fixture.instruments", "fixture.files", "fixture.model", "fixture.errors"},
+    "store": {"fixture.store", "fixture.errors"},
     "runner": {"fixture.runner", "fixture.sim", "fixture.instruments", "fixture.files", "fixture.model",
                "fixture.errors"},
 }
@@ -85,6 +86,7 @@ def test_wheel_carries_the_shipped_designs_and_report_templates(tmp_path: Path) 
     assert "fixture/cli.py" in names
     assert "fixture/sim/devices/bench.yaml" in names
     assert "fixture/instruments/profiles/tessaly-fc3120.toml" in names
+    assert "fixture/store/migrations/versions/0001_initial.py" in names
 
 
 def test_code_passes_the_linter() -> None:
