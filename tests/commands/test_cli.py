@@ -174,3 +174,20 @@ def test_measure_on_the_simulated_bench_reads_the_simulated_units_own_signal(run
     assert data["frequency_hz"] == pytest.approx(1 / truth.period_s, rel=1e-4)
     assert data["duty_pct"] == pytest.approx(100 * truth.duty, abs=0.1)
     assert data["simulated_unit"] == {"serial": "T-1", "seed": 4}
+
+
+def test_test_command_exit_codes_follow_the_verdict(run, tmp_path: Path) -> None:
+    db = str(tmp_path / "r.sqlite")
+    good = run("test", "--serial", "PW22-000001", "--db", db, "--operator", "t", "--json")
+    assert good.exit_code == 0, good.stderr
+    data = json.loads(good.stdout)
+    assert data["verdict"] == "pass" and len(data["steps"]) == 5
+    bad_serial = run("test", "--serial", "XX-1", "--db", db)
+    assert bad_serial.exit_code == 2
+    assert "serial: expected the pattern PW22-[0-9]{6}" in bad_serial.stderr
+
+
+def test_test_command_refuses_a_malformed_lot(run, tmp_path: Path) -> None:
+    result = run("test", "--serial", "PW22-000001", "--lot", "c_integrator", "--db", str(tmp_path / "r.sqlite"))
+    assert result.exit_code == 2
+    assert "--lot: expected PART=LOT" in result.stderr
