@@ -38,16 +38,17 @@ def test_readme_states_the_safety_caution() -> None:
     assert "does not verify electrical safety or isolation" in readme
 
 
-# Rooms import downward only (DEVELOPERS.md). model/ is pure: numpy, stdlib, errors.
+# Rooms import downward only (DEVELOPERS.md): errors < model < files < instruments < sim < store
+# < runner < reporting < commands. model/ is pure: numpy, stdlib, errors.
 ALLOWED = {
     "model": {"fixture.model", "fixture.errors"},
     "files": {"fixture.files", "fixture.model", "fixture.errors"},
-    "reporting": {"fixture.reporting", "fixture.model", "fixture.errors"},
+    "reporting": {"fixture.reporting", "fixture.runner", "fixture.store", "fixture.model", "fixture.errors"},
     "instruments": {"fixture.instruments", "fixture.files", "fixture.model", "fixture.errors"},
     "sim": {"fixture.sim", "fixture.instruments", "fixture.files", "fixture.model", "fixture.errors"},
     "store": {"fixture.store", "fixture.errors"},
-    "runner": {"fixture.runner", "fixture.sim", "fixture.instruments", "fixture.files", "fixture.model",
-               "fixture.errors"},
+    "runner": {"fixture.runner", "fixture.store", "fixture.sim", "fixture.instruments", "fixture.files",
+               "fixture.model", "fixture.errors", "fixture._version"},
 }
 
 

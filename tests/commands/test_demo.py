@@ -1,0 +1,39 @@
+"""knobline demo: a simulated batch through the real runner and store."""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+from click.testing import CliRunner
+
+from fixture.cli import main
+from fixture.files.design_file import load_design
+from fixture.sim.batch import plan_batch
+from fixture.store import open_store
+
+
+def test_demo_batch_fails_every_planted_defect_and_stores_every_run(tmp_path: Path) -> None:
+    result = CliRunner().invoke(main, ["demo", "--units", "40", "--seed", "7", "--out", str(tmp_path), "--json"],
+                                catch_exceptions=False)
+    assert result.exit_code == 0, result.stderr
+    data = json.loads(result.stdout)
+    assert sum(data["verdicts"].values()) == 40 and data["verdicts"]["station-fault"] == 0
+    verdict = {r["serial"]: r["verdict"] for r in data["runs"]}
+    planned = plan_batch(load_design("sequences/demo-panel.toml"), units=40, seed=7)
+    assert {u.serial for u in planned.defective()} <= {s for s, v in verdict.items() if v == "fail"}
+    with open_store(str(tmp_path / "results.sqlite")) as store:
+        assert len(store.runs(limit=100)) == 40
+        unit = store.unit(planned.units[0].serial)
+        assert unit.lots == planned.units[0].lots
+
+
+def test_test_command_takes_lots_from_a_traveller(tmp_path: Path) -> None:
+    traveller = tmp_path / "travellers.csv"
+    traveller.write_text("serial,c_integrator,knob_a_pot\nPW22-000777,C1-2611A,RV1-2609B\n", encoding="utf-8")
+    db = tmp_path / "r.sqlite"
+    result = CliRunner().invoke(main, ["test", "--serial", "PW22-000777", "--traveller", str(traveller), "--db",
+                                       str(db), "--operator", "t", "--json"], catch_exceptions=False)
+    assert result.exit_code == 0, result.stderr
+    with open_store(str(db)) as store:
+        assert store.unit("PW22-000777").lots == {"c_integrator": "C1-2611A", "knob_a_pot": "RV1-2609B"}

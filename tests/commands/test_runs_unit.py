@@ -1,0 +1,190 @@
+"""``knobline runs`` and ``knobline unit``: what the results database holds, for people and for scripts."""
+
+from __future__ import annotations
+
+import datetime as dt
+import hashlib
+import json
+import re
+from pathlib import Path
+
+import pytest
+from click.testing import CliRunner
+
+from fixture.cli import main
+from fixture.store import DB_ENV_VAR, DecoderConstants, MeasurementRecord, open_store
+
+DESIGN_SHA = hashlib.sha256(b"a design file").hexdigest()
+SEQUENCE_SHA = hashlib.sha256(b"a sequence file").hexdigest()
+STATION_SHA = hashlib.sha256(b"a station file").hexdigest()
+T0 = dt.datetime(2026, 3, 2, 8, 0, tzinfo=dt.UTC)
+
+# Invented readings; the commands must hand them back exactly as recorded.
+PERIOD = MeasurementRecord("period at A 25 %", "period", 3.1234567e-3, "s", "pass", knob_a_pct=25.0,
+                           knob_b_pct=50.0, tolerance_low=2.9e-3, tolerance_high=3.4e-3, acceptance_low=2.91e-3,
+                           acceptance_high=3.39e-3, expanded_uncertainty=2.0e-6, coverage_factor=2.0,
+                           decision_rule="guarded acceptance, w = 1 x U")
+DUTY = MeasurementRecord("duty at B 90 %", "duty", 0.9312, "1", "fail", knob_a_pct=50.0, knob_b_pct=90.0,
+                         tolerance_high=0.92, acceptance_high=0.919)
+CURRENT = MeasurementRecord("supply current", "supply_current", 6.6e-3, "A", "pass", acceptance_low=2e-3,
+                            acceptance_high=15e-3)
+
+
+@pytest.fixture
+def db_url(tmp_path: Path) -> str:
+    """A database with two units: PW22-000001 failed once then passed its retest; PW22-000002 is running."""
+    url = f"sqlite:///{tmp_path / 'results.sqlite'}"
+    with open_store(url) as store:
+        store.record_design("PW-22", "C", "demo-panel.toml", DESIGN_SHA)
+        store.record_sequence("final test", "demo-sequence.toml", SEQUENCE_SHA)
+        store.record_station("line-1", "hall 2", STATION_SHA, "demo-station.toml")
+
+        counter = store.record_instrument("counter", "Tessaly Instruments", "FC-3120", "T31-0042", "1.04",
+                                          calibration_certificate="CAL-26-0117",
+                                          calibration_due=dt.date(2027, 1, 31), calibration_lab="in-house")
+
+        def begin(serial: str, operator: str, started: dt.datetime) -> int:
+            return store.begin_run(serial, {"c_integrator": "C1-2611A", "knob_a_pot": "RV1-2604A"}, "line-1",
+                                   operator, "0.1.0", SEQUENCE_SHA, DESIGN_SHA, started_at=started,
+                                   instruments=[counter])
+
+        first = begin("PW22-000001", "ana", T0)
+        store.record_step(first, 0, "power up", "pass", T0, T0 + dt.timedelta(seconds=1), "", [CURRENT])
+        store.record_step(first, 1, "duty at stops", "fail", T0 + dt.timedelta(seconds=1),
+                          T0 + dt.timedelta(seconds=4), "duty high at B 90 %", [PERIOD, DUTY])
+        store.finish_run(first, "fail", ended_at=T0 + dt.timedelta(seconds=4.5))
+
+        t1 = T0 + dt.timedelta(minutes=10)
+        retest = begin("PW22-000001", "ben", t1)
+        store.record_step(retest, 0, "power up", "pass", t1, t1 + dt.timedelta(seconds=1), "", [CURRENT])
+        store.record_decoder_calibration(retest, DecoderConstants(3.6e-3, 1.9e-3, 0.08, 0.93, "linear-in-period",
+                                                                  "linear-in-duty", 1.25, 0.5))
+        store.finish_run(retest, "pass", ended_at=t1 + dt.timedelta(seconds=12.25))
+
+        begin("PW22-000002", "ana", T0 + dt.timedelta(minutes=20))
+    return url
+
+
+@pytest.fixture
+def run(monkeypatch: pytest.MonkeyPatch, tmp_path: Path):
+    # Never touch the developer's own results database.
+    monkeypatch.delenv(DB_ENV_VAR, raising=False)
+    monkeypatch.setenv("XDG_DATA_HOME", str(tmp_path / "xdg"))
+    runner = CliRunner()
+
+    def invoke(*args: str, env: dict[str, str] | None = None):
+        return runner.invoke(main, list(args), catch_exceptions=False, env=env)
+
+    return invoke
+
+
+def documented_json_keys(help_text: str) -> set[str]:
+    """The words of the help's ``JSON keys:`` paragraph that name keys."""
+    paragraph = help_text.split("JSON keys:", 1)[1].split("\n\n", 1)[0]
+    return set(re.findall(r"[a-z][a-z0-9_]*", paragraph)) - {"or", "null", "part", "lot"}
+
+
+def all_keys(data: object) -> set[str]:
+    if isinstance(data, dict):
+        return set(data) | {k for v in data.values() for k in all_keys(v)}
+    if isinstance(data, list):
+        return {k for v in data for k in all_keys(v)}
+    return set()
+
+
+def test_runs_lists_newest_first_with_verdict_duration_and_retest_link(run, db_url: str) -> None:
+    result = run("runs", "--db", db_url, "--json")
+    assert result.exit_code == 0, result.stderr
+    runs = json.loads(result.stdout)["runs"]
+    assert [(r["run_id"], r["serial"], r["verdict"]) for r in runs] == [
+        (3, "PW22-000002", "running"), (2, "PW22-000001", "pass"), (1, "PW22-000001", "fail")]
+    # Durations are end minus start of what was recorded (plain arithmetic).
+    assert [r["duration_s"] for r in runs] == [None, 12.25, 4.5]
+    assert [r["retest_of"] for r in runs] == [None, 1, None]
+    assert runs[2]["started_at"] == "2026-03-02T08:00:00+00:00"  # ISO 8601 with UTC offset
+    assert runs[1]["operator"] == "ben" and runs[1]["station"] == "line-1"
+
+
+def test_runs_text_is_a_table_with_one_line_per_run(run, db_url: str) -> None:
+    result = run("runs", "--db", db_url)
+    assert result.exit_code == 0, result.stderr
+    lines = result.stdout.splitlines()
+    assert lines[0].split()[:3] == ["run", "serial", "verdict"]
+    assert len(lines) == 4
+    assert lines[2].split() == ["2", "PW22-000001", "pass", "line-1", "ben", "2026-03-02", "08:10:00", "12.2",
+                                "s", "1"]
+
+
+def test_runs_filters_by_serial_and_limits_the_count(run, db_url: str) -> None:
+    result = run("runs", "--db", db_url, "--serial", "PW22-000001", "--limit", "1", "--json")
+    assert [r["run_id"] for r in json.loads(result.stdout)["runs"]] == [2]
+
+
+def test_runs_reads_the_database_named_by_the_environment(run, db_url: str) -> None:
+    result = run("runs", "--json", env={DB_ENV_VAR: db_url})
+    assert result.exit_code == 0, result.stderr
+    assert len(json.loads(result.stdout)["runs"]) == 3
+
+
+def test_runs_json_keys_are_the_ones_the_help_lists(run, db_url: str) -> None:
+    documented = documented_json_keys(run("runs", "--help").stdout)
+    found = all_keys(json.loads(run("runs", "--db", db_url, "--json").stdout))
+    assert found == documented
+
+
+def test_unit_json_keys_are_the_ones_the_help_lists(run, db_url: str) -> None:
+    documented = documented_json_keys(run("unit", "--help").stdout)
+    data = json.loads(run("unit", "PW22-000001", "--db", db_url, "--json").stdout)
+    found = all_keys(data) - set(data["lots"])  # lot keys are the design's part keys
+    assert found == documented
+
+
+def test_unit_shows_lots_and_every_reading_with_its_limits_and_verdict(run, db_url: str) -> None:
+    result = run("unit", "PW22-000001", "--db", db_url, "--json")
+    assert result.exit_code == 0, result.stderr
+    data = json.loads(result.stdout)
+    assert data["lots"] == {"c_integrator": "C1-2611A", "knob_a_pot": "RV1-2604A"}
+    assert data["design"] == {"name": "PW-22", "revision": "C"}
+    first, retest = data["runs"]
+    assert (first["verdict"], retest["verdict"], retest["retest_of"]) == ("fail", "pass", 1)
+    step = first["steps"][1]
+    assert (step["name"], step["verdict"], step["message"]) == ("duty at stops", "fail", "duty high at B 90 %")
+    period, duty = step["measurements"]
+    assert MeasurementRecord(**period) == PERIOD  # JSON floats round-trip exactly (repr is shortest-exact)
+    assert MeasurementRecord(**duty) == DUTY
+    assert first["decoder"] is None
+    assert retest["decoder"]["scheme_a"] == "linear-in-period"
+    assert retest["instruments"] == [{"role": "counter", "make": "Tessaly Instruments", "model": "FC-3120",
+                                      "serial": "T31-0042", "firmware": "1.04", "certificate": "CAL-26-0117",
+                                      "calibration_due": "2027-01-31"}]
+
+
+def test_unit_text_shows_each_step_and_reading(run, db_url: str) -> None:
+    result = run("unit", "PW22-000001", "--db", db_url)
+    assert result.exit_code == 0, result.stderr
+    text = result.stdout
+    assert "c_integrator" in text and "C1-2611A" in text
+    assert "step 1 duty at stops: FAIL: duty high at B 90 %" in text
+    # Duty is recorded as a fraction; people read percent: 0.9312 -> 93.12 %.
+    duty_line = next(ln for ln in text.splitlines() if "duty at B 90 %:" in ln)
+    assert duty_line.split()[0] == "FAIL" and "93.12 %" in duty_line and "91.9 %" in duty_line
+    period_line = next(ln for ln in text.splitlines() if "period at A 25 %:" in ln)
+    assert "3.12346 ms" in period_line and "(k = 2)" in period_line
+
+
+def test_unknown_serial_exits_2_with_one_line(run, db_url: str) -> None:
+    for args in (("unit", "PW22-999999"), ("runs", "--serial", "PW22-999999")):
+        result = run(*args, "--db", db_url)
+        assert result.exit_code == 2
+        errors = [ln for ln in result.stderr.splitlines() if ln.startswith("knobline:")]
+        assert errors == [f"knobline: error: serial 'PW22-999999': expected a unit with recorded runs in "
+                          f"{db_url}, found none"]
+
+
+def test_reading_a_database_that_does_not_exist_does_not_create_it(run, tmp_path: Path) -> None:
+    missing = tmp_path / "typo.sqlite"
+    result = run("runs", "--db", str(missing))
+    assert result.exit_code == 0
+    assert "no runs recorded" in result.stdout
+    assert run("unit", "PW22-000001", "--db", str(missing)).exit_code == 2
+    assert not missing.exists()
