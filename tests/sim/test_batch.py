@@ -54,8 +54,11 @@ def test_every_lotted_part_has_its_lots_each_used_by_a_fair_share_of_units(desig
     for part, part_codes in plan.lots.items():
         used = Counter(u.lots[part] for u in plan.units)
         assert set(used) == set(part_codes)
-        # Documented in _lot_blocks: each block at least 40 % of an even share, less one for rounding.
-        assert min(used.values()) >= math.floor(0.4 * units / lots) - 1
+        # Documented in _lot_blocks: each block at least 40 % of an even share, less one for rounding;
+        # the shifted part has `lots` lots, the others 2..lots+1 (documented in plan_batch).
+        count = len(part_codes)
+        assert (count == lots) if part == plan.shifted[0] else (2 <= count <= lots + 1)
+        assert min(used.values()) >= math.floor(0.4 * units / count) - 1
     # Lots of different parts change at different units, so a lot analysis can tell them apart.
     changes = {part: tuple(i for i in range(1, units) if plan.units[i].lots[part] != plan.units[i - 1].lots[part])
                for part in plan.lots}
@@ -65,7 +68,7 @@ def test_every_lotted_part_has_its_lots_each_used_by_a_fair_share_of_units(desig
 def test_a_batch_smaller_than_the_lot_count_still_gives_every_unit_a_lot(design) -> None:
     plan = plan_batch(design, units=2, seed=3, lots_per_part=3)
     for part in plan.lots:
-        assert len(plan.lots[part]) == 2
+        assert len(plan.lots[part]) <= 2
         assert {u.lots[part] for u in plan.units} == set(plan.lots[part])
 
 
