@@ -14,7 +14,8 @@ from fixture.store import open_store
 
 
 def test_demo_batch_fails_every_planted_defect_and_stores_every_run(tmp_path: Path) -> None:
-    result = CliRunner().invoke(main, ["demo", "--units", "40", "--seed", "7", "--out", str(tmp_path), "--json"],
+    result = CliRunner().invoke(main, ["demo", "--units", "40", "--seed", "7", "--out", str(tmp_path), "--no-reports",
+                                       "--json"],
                                 catch_exceptions=False)
     assert result.exit_code == 0, result.stderr
     data = json.loads(result.stdout)
@@ -37,3 +38,18 @@ def test_test_command_takes_lots_from_a_traveller(tmp_path: Path) -> None:
     assert result.exit_code == 0, result.stderr
     with open_store(str(db)) as store:
         assert store.unit("PW22-000777").lots == {"c_integrator": "C1-2611A", "knob_a_pot": "RV1-2609B"}
+
+
+def test_demo_ends_with_a_batch_report_and_a_verifiable_certificate_per_unit(tmp_path: Path) -> None:
+    result = CliRunner().invoke(main, ["demo", "--units", "8", "--seed", "3", "--out", str(tmp_path), "--json"],
+                                catch_exceptions=False)
+    assert result.exit_code == 0, result.stderr
+    data = json.loads(result.stdout)
+    report = Path(data["batch_report"]).read_text(encoding="utf-8")
+    assert "First-pass yield" in report and "<svg" in report
+    certificates = sorted(Path(data["certificates"]).glob("*.html"))
+    assert len(certificates) == data["certificate_count"] == 8
+    verify = CliRunner().invoke(main, ["verify", str(certificates[0]), "--db", str(tmp_path / "results.sqlite"),
+                                       "--key", str(tmp_path / "keys" / "station-ed25519.pem")],
+                                catch_exceptions=False)
+    assert verify.exit_code == 0, verify.stdout + verify.stderr
