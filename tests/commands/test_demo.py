@@ -53,3 +53,18 @@ def test_demo_ends_with_a_batch_report_and_a_verifiable_certificate_per_unit(tmp
                                        "--key", str(tmp_path / "keys" / "station-ed25519.pem")],
                                 catch_exceptions=False)
     assert verify.exit_code == 0, verify.stdout + verify.stderr
+
+
+def test_batch_report_prints_hostile_lot_codes_and_operators_as_text(tmp_path: Path) -> None:
+    db = str(tmp_path / "r.sqlite")
+    hostile = "<script>alert(1)</script>"
+    for serial, lot in (("PW22-000501", hostile), ("PW22-000502", "C1-2611A"), ("PW22-000503", hostile)):
+        result = CliRunner().invoke(main, ["test", "--serial", serial, "--lot", f"c_integrator={lot}",
+                                           "--operator", hostile, "--db", db, "--json"], catch_exceptions=False)
+        assert result.exit_code == 0, result.stderr
+    report = CliRunner().invoke(main, ["report", "batch", "--db", db, "--out", str(tmp_path), "--json"],
+                                catch_exceptions=False)
+    assert report.exit_code == 0, report.stderr
+    html = (tmp_path / "batch-report.html").read_text(encoding="utf-8")
+    assert hostile not in html
+    assert "&lt;script&gt;alert(1)&lt;/script&gt;" in html
