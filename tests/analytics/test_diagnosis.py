@@ -17,10 +17,9 @@ import pytest
 from fixture.analytics.diagnosis import (
     Reading,
     ReadingUncertainty,
-    diagnose_lot,
-    diagnose_lots,
     diagnose_unit,
 )
+from fixture.analytics.lot_diagnosis import diagnose_lot, diagnose_lots
 from fixture.errors import UserInputError
 from fixture.files.design_file import load_design
 from fixture.sim.batch import plan_batch
