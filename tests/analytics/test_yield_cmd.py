@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import json
-import re
 from pathlib import Path
 
 import pytest
@@ -14,6 +13,11 @@ from fixture.cli import main
 from fixture.store import DB_ENV_VAR, Store
 
 from .conftest import Run, record_unit
+from tests.json_keys import all_keys, documented_json_keys
+
+
+def _documented(help_text: str) -> set[str]:
+    return documented_json_keys(help_text, {"each", "is", "null", "without", "and", "are", "unless"})
 
 
 @pytest.fixture
@@ -35,20 +39,6 @@ def filled(store: Store, db_url: str) -> str:
     return db_url
 
 
-def documented_json_keys(help_text: str) -> set[str]:
-    paragraph = help_text.split("JSON keys:", 1)[1].split("\n\n", 1)[0]
-    return set(re.findall(r"[a-z][a-z0-9_]*", paragraph)) - {"each", "is", "null", "without", "and", "are",
-                                                             "unless"}
-
-
-def all_keys(data: object) -> set[str]:
-    if isinstance(data, dict):
-        return set(data) | {k for v in data.values() for k in all_keys(v)}
-    if isinstance(data, list):
-        return {k for v in data for k in all_keys(v)}
-    return set()
-
-
 def test_yield_by_lot_json_has_exact_intervals_and_flags_the_bad_lot(run, filled: str) -> None:
     result = run("yield", "--db", filled, "--json")
     assert result.exit_code == 0, result.stderr
@@ -65,7 +55,7 @@ def test_yield_by_lot_json_has_exact_intervals_and_flags_the_bad_lot(run, filled
 
 
 def test_yield_json_keys_are_the_ones_the_help_lists(run, filled: str) -> None:
-    documented = documented_json_keys(run("yield", "--help").stdout)
+    documented = _documented(run("yield", "--help").stdout)
     found = all_keys(json.loads(run("yield", "--db", filled, "--json").stdout))
     assert found == documented
 

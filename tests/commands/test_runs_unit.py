@@ -5,7 +5,6 @@ from __future__ import annotations
 import datetime as dt
 import hashlib
 import json
-import re
 from pathlib import Path
 
 import pytest
@@ -13,6 +12,7 @@ from click.testing import CliRunner
 
 from fixture.cli import main
 from fixture.store import DB_ENV_VAR, DecoderConstants, MeasurementRecord, open_store
+from tests.json_keys import all_keys, documented_json_keys
 
 DESIGN_SHA = hashlib.sha256(b"a design file").hexdigest()
 SEQUENCE_SHA = hashlib.sha256(b"a sequence file").hexdigest()
@@ -28,6 +28,10 @@ DUTY = MeasurementRecord("duty at B 90 %", "duty", 0.9312, "1", "fail", knob_a_p
                          tolerance_high=0.92, acceptance_high=0.919)
 CURRENT = MeasurementRecord("supply current", "supply_current", 6.6e-3, "A", "pass", acceptance_low=2e-3,
                             acceptance_high=15e-3)
+
+
+def _documented(help_text: str) -> set[str]:
+    return documented_json_keys(help_text, {"or", "null", "part", "lot"})
 
 
 @pytest.fixture
@@ -78,20 +82,6 @@ def run(monkeypatch: pytest.MonkeyPatch, tmp_path: Path):
     return invoke
 
 
-def documented_json_keys(help_text: str) -> set[str]:
-    """The words of the help's ``JSON keys:`` paragraph that name keys."""
-    paragraph = help_text.split("JSON keys:", 1)[1].split("\n\n", 1)[0]
-    return set(re.findall(r"[a-z][a-z0-9_]*", paragraph)) - {"or", "null", "part", "lot"}
-
-
-def all_keys(data: object) -> set[str]:
-    if isinstance(data, dict):
-        return set(data) | {k for v in data.values() for k in all_keys(v)}
-    if isinstance(data, list):
-        return {k for v in data for k in all_keys(v)}
-    return set()
-
-
 def test_runs_lists_newest_first_with_verdict_duration_and_retest_link(run, db_url: str) -> None:
     result = run("runs", "--db", db_url, "--json")
     assert result.exit_code == 0, result.stderr
@@ -127,13 +117,13 @@ def test_runs_reads_the_database_named_by_the_environment(run, db_url: str) -> N
 
 
 def test_runs_json_keys_are_the_ones_the_help_lists(run, db_url: str) -> None:
-    documented = documented_json_keys(run("runs", "--help").stdout)
+    documented = _documented(run("runs", "--help").stdout)
     found = all_keys(json.loads(run("runs", "--db", db_url, "--json").stdout))
     assert found == documented
 
 
 def test_unit_json_keys_are_the_ones_the_help_lists(run, db_url: str) -> None:
-    documented = documented_json_keys(run("unit", "--help").stdout)
+    documented = _documented(run("unit", "--help").stdout)
     data = json.loads(run("unit", "PW22-000001", "--db", db_url, "--json").stdout)
     found = all_keys(data) - set(data["lots"])  # lot keys are the design's part keys
     assert found == documented
