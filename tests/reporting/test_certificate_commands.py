@@ -12,6 +12,7 @@ from sqlalchemy import text
 
 from fixture.cli import main
 from fixture.store import open_store
+from tests.json_keys import all_keys
 
 
 @pytest.fixture
@@ -28,14 +29,6 @@ def documented_json_keys(help_text: str) -> set[str]:
     paragraph = help_text.split("JSON keys:", 1)[1].split("\n\n", 1)[0]
     paragraph = paragraph.split("; check is", 1)[0]  # what follows lists values, not keys
     return set(re.findall(r"[a-z][a-z0-9_]*", paragraph))
-
-
-def all_keys(data: object) -> set[str]:
-    if isinstance(data, dict):
-        return set(data) | {k for v in data.values() for k in all_keys(v)}
-    if isinstance(data, list):
-        return {k for v in data for k in all_keys(v)}
-    return set()
 
 
 def certify(run, db_url: str, key, out: Path, *args: str) -> dict:
