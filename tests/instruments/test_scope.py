@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from fixture.errors import InstrumentErrorQueue, OverflowReading, UnparsableReply, UserInputError
+from fixture.errors import ImpossibleReading, InstrumentErrorQueue, OverflowReading, UnparsableReply, UserInputError
 from fixture.instruments import Scope, ScopeSettings
 
 from .fakes import FakeInstrument, scripted_session
@@ -82,11 +82,15 @@ def test_preamble_with_the_wrong_field_count_is_unparsable() -> None:
         s.acquire()
 
 
-def test_ascii_record_with_the_overflow_value_is_an_overflow_fault() -> None:
+def test_ascii_record_with_the_overflow_value_is_an_impossible_reading_not_a_missing_signal() -> None:
+    # 9.91E37 is SCPI's "not a number" (SCPI-1999 Vol 1 ch. 7, from memory): no sample voltage, and not
+    # an OverflowReading either, which a runner could take for the unit's missing signal.
     s, _ = scope({"TRAC:DATA? CH1": "9.91E37,9.91E37"})
     s.configure(ScopeSettings(**SETTINGS))
-    with pytest.raises(OverflowReading):
+    with pytest.raises(ImpossibleReading, match=r"TRAC:DATA\? CH1") as caught:
         s.acquire()
+    assert not isinstance(caught.value, OverflowReading)
+    assert (caught.value.role, caught.value.command) == ("scope", "TRAC:DATA? CH1")
 
 
 def test_one_sample_is_not_a_record() -> None:

@@ -85,15 +85,18 @@ def test_lost_connection_is_not_retried() -> None:
         raise ConnectionLost("TCPIP0::fake::inst0::INSTR: connection lost")
 
     session, transport = scripted_session(COUNTER, handler)
-    with pytest.raises(ConnectionLost, match=r"counter TCPIP0::fake::inst0::INSTR: FETC:PER\?: connection lost"):
+    with pytest.raises(ConnectionLost, match=r"counter \(Tessaly Instruments FC-3120 at TCPIP0::fake::inst0::INSTR\): "
+                                             r"FETC:PER\?: connection lost") as caught:
         session.query_float("fetch_period")
+    assert (caught.value.role, caught.value.command) == ("counter", "FETC:PER?")
     assert transport.sent == ["FETC:PER?"]
 
 
 def test_unparsable_reply_names_instrument_and_command() -> None:
     fake = FakeInstrument({"FETC:PER?": "1.0E-03 s"})
     session, _ = scripted_session(COUNTER, fake, max_retries=0)
-    with pytest.raises(UnparsableReply, match=r"counter TCPIP0::fake::inst0::INSTR: FETC:PER\?: expected a number"):
+    with pytest.raises(UnparsableReply, match=r"counter \(Tessaly Instruments FC-3120 at TCPIP0::fake::inst0::INSTR\): "
+                                              r"FETC:PER\?: expected a number"):
         session.query_float("fetch_period")
 
 
