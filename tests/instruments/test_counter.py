@@ -4,7 +4,14 @@ from __future__ import annotations
 
 import pytest
 
-from fixture.errors import InstrumentErrorQueue, InstrumentTimeout, OverflowReading, SoftwareFault, UserInputError
+from fixture.errors import (
+    ImpossibleReading,
+    InstrumentErrorQueue,
+    InstrumentTimeout,
+    OverflowReading,
+    SoftwareFault,
+    UserInputError,
+)
 from fixture.instruments import Counter, CounterSettings, Event, ScriptedTransport, Session, load_profile
 from tests.files.edits import edited_copy
 
@@ -122,3 +129,39 @@ def test_unsubscribed_listener_hears_nothing_more() -> None:
 def test_bad_counter_settings_are_user_input_errors(kwargs, complaint) -> None:
     with pytest.raises(UserInputError, match=complaint):
         CounterSettings(**kwargs)
+
+
+@pytest.mark.parametrize(("function", "reply", "expected"), [
+    # A frequency or period is above zero by definition; SCPI 9.9E37 is +infinity (SCPI-1999, from memory);
+    # 1E999 is a valid NR3 number but no float; duty is a fraction of one period, so 0 < duty < 100 %.
+    ("frequency", "-1E300", r"a frequency from 0.001 Hz to 3.5e\+08 Hz"),
+    ("frequency", "0", "a frequency from 0.001 Hz"),
+    ("frequency", "1E999", "a frequency"),
+    ("frequency", "9.9E37", r"SCPI \+infinity"),
+    ("frequency", "4.0E+08", r"to 3.5e\+08 Hz"),  # above the FC-3120 profile's stated range
+    ("period", "-1", r"a period from 2.85714e-09 s to 1000 s"),
+    ("period", "-9.9E37", "SCPI -infinity"),
+    ("pulse_width", "0", "a pulse width above 0 s"),
+    ("duty", "0", "a duty above 0 % below 100 %"),
+    ("duty", "100.0", "a duty above 0 %"),
+    ("duty", "-25", "a duty"),
+])
+def test_an_impossible_reading_is_a_fault_naming_counter_query_and_reply(function, reply, expected) -> None:
+    fetch = {"frequency": "FETC:FREQ?", "period": "FETC:PER?", "pulse_width": "FETC:PWID?", "duty": "FETC:DCYC?"}
+    c, sent = counter({fetch[function]: reply})
+    c.configure(CounterSettings(function=function, gate_time_s=0.1))
+    with pytest.raises(ImpossibleReading, match=expected) as caught:
+        c.read()
+    message = caught.value.message
+    assert message.startswith(f"counter (Tessaly Instruments FC-3120 at TCPIP0::fake::inst0::INSTR): "
+                              f"{fetch[function]}: answered {reply!r}")
+    assert (caught.value.role, caught.value.command) == ("counter", fetch[function])
+    assert sent.count(fetch[function]) == 3  # asked again twice: a garbled reading may be a one-off
+
+
+def test_a_duty_ratio_of_one_is_a_hundred_percent_and_impossible(tmp_path) -> None:
+    profile = load_profile(edited_copy(shipped(PROFILE), tmp_path, 'duty = "percent"', 'duty = "ratio"'))
+    c = Counter(Session(ScriptedTransport(FakeInstrument({"FETC:DCYC?": "1.0"})), profile, max_retries=0))
+    c.configure(CounterSettings(function="duty", gate_time_s=0.1))
+    with pytest.raises(ImpossibleReading, match="below 100 %"):
+        c.read()

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import pytest
+import pyvisa
 
 from fixture.errors import (
     ConnectionLost,
@@ -177,3 +178,57 @@ def test_writes_and_queries_cannot_be_mixed_up() -> None:
 def test_negative_retry_count_is_refused() -> None:
     with pytest.raises(UserInputError):
         scripted_session(COUNTER, FakeInstrument(), max_retries=-1)
+
+
+class RawFailingTransport:
+    """A transport that raises what a socket or VISA library raises, not a knobline fault."""
+
+    name = "TCPIP0::raw::inst0::INSTR"
+    timeout_s = 2.0
+
+    def __init__(self, exc: BaseException) -> None:
+        self.exc = exc
+
+    def write(self, text: str) -> None:
+        raise self.exc
+
+    def query(self, text: str) -> str:
+        raise self.exc
+
+    read = query_block = query
+
+    def clear(self) -> None:
+        raise self.exc
+
+    def close(self) -> None:
+        pass
+
+
+@pytest.mark.parametrize(("exc", "fault"), [
+    # The OSError family (Python docs, "OS exceptions"): resets and broken pipes are ConnectionError,
+    # a socket timeout is TimeoutError.
+    (ConnectionResetError(104, "Connection reset by peer"), ConnectionLost),
+    (BrokenPipeError(32, "Broken pipe"), ConnectionLost),
+    (OSError(113, "No route to host"), ConnectionLost),
+    (TimeoutError("timed out"), InstrumentTimeout),
+    (UnicodeDecodeError("ascii", b"\xff", 0, 1, "ordinal not in range(128)"), UnparsableReply),
+    (pyvisa.errors.InvalidSession(), ConnectionLost),
+    (RuntimeError("a VISA library's own failure"), ConnectionLost),
+])
+def test_no_raw_transport_exception_leaves_a_session(exc: BaseException, fault: type) -> None:
+    from fixture.instruments import Session, load_profile
+
+    session = Session(RawFailingTransport(exc), load_profile(COUNTER), max_retries=1)
+    for call in (lambda: session.query_float("fetch_frequency"), lambda: session.write("initiate")):
+        with pytest.raises(fault) as caught:
+            call()
+        assert caught.value.role == "counter" and caught.value.command in ("FETC:FREQ?", "INIT")
+        assert caught.value.message.startswith("counter (Tessaly Instruments FC-3120 at TCPIP0::raw::inst0::INSTR)")
+        assert type(exc).__name__ in caught.value.message
+
+
+def test_a_fault_names_role_and_command_as_attributes() -> None:
+    session, _ = scripted_session(COUNTER, FakeInstrument({"FETC:FREQ?": "9.91E37"}))
+    with pytest.raises(OverflowReading) as caught:
+        session.query_float("fetch_frequency")
+    assert (caught.value.role, caught.value.command) == ("counter", "FETC:FREQ?")
