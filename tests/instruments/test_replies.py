@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from fixture.errors import OverflowReading, UnparsableReply
+from fixture.errors import ImpossibleReading, OverflowReading, UnparsableReply
 from fixture.instruments.replies import Identity, parse_error_entry, parse_int, parse_number, parse_numbers
 
 
@@ -41,6 +41,13 @@ def test_a_large_ordinary_number_is_not_an_overflow() -> None:
 @pytest.mark.parametrize("reply", ["nan", "inf", "-Infinity", "1_000", "1.0 V", "", "0x10", "1,2"])
 def test_what_python_float_accepts_but_scpi_does_not_is_unparsable(reply: str) -> None:
     with pytest.raises(UnparsableReply):
+        parse_number(reply)
+
+
+@pytest.mark.parametrize("reply", ["1E999", "-1E999", "+1.5E+400"])
+def test_a_valid_nr3_number_beyond_a_double_is_an_impossible_reading(reply: str) -> None:
+    # IEEE 754 binary64 tops out near 1.8E308 (IEEE 754-2008, from memory); float() makes these +-inf.
+    with pytest.raises(ImpossibleReading, match="beyond the range of a number"):
         parse_number(reply)
 
 
