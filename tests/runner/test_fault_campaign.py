@@ -43,9 +43,23 @@ def test_no_exception_escapes_a_run(campaign) -> None:
     assert campaign.escaped() == [], campaign.summary()
 
 
-@pytest.mark.xfail(strict=True, reason="needs the fail-safe runner from branch i8-runner")
-def test_no_good_unit_is_failed_by_an_instrument_fault(campaign) -> None:
-    assert campaign.good_failed() == [], campaign.summary()
+#: A supply reading 0 A is a possible reading (an open unit draws nothing): only the runner can
+#: tell it from the unit, by a cross-check (a unit putting out a wave draws current).
+SUPPLY_ZERO = ("supply", FaultKind.ZERO)
+
+
+@pytest.mark.xfail(strict=True, reason="needs the fail-safe runner from branch i8-runner (counter overflow "
+                                       "cross-checked with the scope)")
+def test_no_good_unit_is_failed_by_an_impossible_or_missing_reading(campaign) -> None:
+    failed = [r for r in campaign.good_failed() if (r.case.role, r.case.kind) != SUPPLY_ZERO]
+    assert failed == [], campaign.summary()
+
+
+@pytest.mark.xfail(strict=True, reason="needs a runner cross-check of a power-up current below its limit "
+                                       "against the counter or scope (not yet on any branch)")
+def test_no_good_unit_is_failed_by_a_supply_reading_zero(campaign) -> None:
+    failed = [r for r in campaign.good_failed() if (r.case.role, r.case.kind) == SUPPLY_ZERO]
+    assert failed == [], campaign.summary()
 
 
 def test_a_fault_given_once_lets_a_good_unit_pass(campaign) -> None:
@@ -53,5 +67,5 @@ def test_a_fault_given_once_lets_a_good_unit_pass(campaign) -> None:
     # clears after one reply must not cost the unit its verdict. Zero from the supply is a possible
     # reading (an open unit draws nothing) and is judged; that case is the runner's to cross-check.
     once = [r for r in campaign.results if r.case.unit == "good" and r.case.mode == "once"
-            and (r.case.role, r.case.kind) != ("supply", FaultKind.ZERO)]
+            and (r.case.role, r.case.kind) != SUPPLY_ZERO]
     assert [r.case.label for r in once if r.verdict != "pass"] == []
