@@ -87,7 +87,7 @@ def test_a_second_process_on_the_same_station_is_refused_and_the_first_run_compl
     out, err = second.communicate(timeout=120)
     # Exit 3: a station fault (README exit codes); one line naming the holder.
     assert second.returncode == 3, err
-    assert f"station '{STATION}' is in use by process {first.pid} on host" in err
+    assert f"station '{STATION}' is in use by process {first.pid} on host" in err and " since " in err
     assert "Traceback" not in err
     flag.touch()
     first.communicate(timeout=120)
@@ -136,7 +136,8 @@ def test_a_station_is_held_once_per_process_and_others_stay_free(tmp_path) -> No
     with open_store(str(tmp_path / "r.sqlite")) as store:
         with hold_station(store, STATION) as hold:
             assert hold.still_held
-            with pytest.raises(StationInUse, match=f"station '{STATION}' is in use by process {os.getpid()}"):
+            with pytest.raises(StationInUse, match=rf"station '{STATION}' is in use by process {os.getpid()} "
+                                                   r"on host \S+ since \d\d:\d\d UTC; wait for it"):
                 hold_station(store, STATION)
             with hold_station(store, "PW-22 end-of-line bench 3"):
                 pass
