@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import datetime as dt
 import hashlib
 from collections.abc import Iterator
 from pathlib import Path
@@ -9,6 +10,7 @@ from pathlib import Path
 import pytest
 
 from fixture.store import Store, open_store
+from fixture.store.models import RunRow
 
 # Hashes of made-up file contents; the store only needs them to be distinct.
 DESIGN_SHA = hashlib.sha256(b"design file").hexdigest()
@@ -35,3 +37,12 @@ def begin(store: Store, serial: str = "PW22-000001", station: str = "line-1", **
     lots = kwargs.pop("lots", {"c_integrator": "L-C1"})
     return store.begin_run(serial, lots, station, "operator", "0.0-test", SEQUENCE_SHA, DESIGN_SHA,
                            **kwargs)  # type: ignore[arg-type]
+
+
+def set_owner(store: Store, run_id: int, host: str, pid: int, started: str,
+              heartbeat_at: dt.datetime | None) -> None:
+    """Make run ``run_id`` look owned by another process (the store stamps runs with its own)."""
+    run = RunRow.__table__
+    with store.engine.begin() as connection:
+        connection.execute(run.update().where(run.c.id == run_id).values(
+            owner_host=host, owner_pid=pid, owner_started=started, heartbeat_at=heartbeat_at))

@@ -2,11 +2,14 @@
 
 from __future__ import annotations
 
+from alembic import command
 from alembic.autogenerate import compare_metadata
 from alembic.runtime.migration import MigrationContext
-from sqlalchemy import inspect
+from sqlalchemy import inspect, text
 
 from fixture.store import current_revision, head_revision, make_engine, open_store, upgrade_to_head
+from fixture.store.engine import WRITE_OPTION
+from fixture.store.migrate import alembic_config
 from fixture.store.models import Base
 
 
@@ -36,3 +39,27 @@ def test_opening_a_migrated_database_again_keeps_its_data(db_url: str) -> None:
     with open_store(db_url) as store:
         assert current_revision(store.engine) == head_revision()
         assert store.record_design("PW-22", "B", "x.toml", "0" * 64) == design_id
+
+
+def test_a_run_recorded_before_ownership_keeps_its_data_and_is_judged_by_age(db_url: str) -> None:
+    engine = make_engine(db_url)
+    try:
+        with engine.execution_options(**{WRITE_OPTION: True}).begin() as connection:
+            command.upgrade(alembic_config(connection=connection), "0001")
+        with engine.begin() as connection:
+            for statement in (
+                "INSERT INTO product_design VALUES (1, 'PW-22', 'C', 'x', 'd', NULL, '2026-12-01 08:00:00')",
+                "INSERT INTO sequence VALUES (1, 'final', 'x', 's', NULL, '2026-12-01 08:00:00')",
+                "INSERT INTO station VALUES (1, 'line-1', 'hall', 'h', '', '2026-12-01 08:00:00')",
+                "INSERT INTO unit VALUES (1, 'OLD-1', 1)",
+                "INSERT INTO run VALUES (1, 1, 1, 'op', '0.0', 's', 'd', '2026-12-01 08:00:00', NULL, 'running', "
+                "NULL, '[]')"):
+                connection.execute(text(statement))
+    finally:
+        engine.dispose()
+    with open_store(db_url) as store:  # migrates 0001 -> head
+        assert current_revision(store.engine) == head_revision()
+        summary = store.previous_runs("OLD-1")[0]
+        assert (summary.verdict, summary.self_check_id) == ("running", None)
+        # No owner was recorded: a run started two days ago with no heartbeat is long gone.
+        assert store.mark_incomplete_runs("line-1") == [1]

@@ -11,7 +11,7 @@ from sqlalchemy.orm import Session
 from fixture.errors import SoftwareFault, UserInputError
 from fixture.store import DecoderConstants, MeasurementRecord, Store
 from fixture.store.models import ProductDesignRow, UnitRow
-from tests.store.conftest import DESIGN_SHA, SEQUENCE_SHA, begin
+from tests.store.conftest import DESIGN_SHA, SEQUENCE_SHA, begin, set_owner
 
 T0 = dt.datetime(2026, 3, 2, 8, 0, tzinfo=dt.UTC)
 
@@ -156,6 +156,9 @@ def test_marking_incomplete_touches_only_running_runs_of_that_station(store: Sto
     store.finish_run(done, "pass")
     left = begin(store, serial="B")
     elsewhere = begin(store, serial="C", station="line-2")
+    # Both running runs look owned by a dead process (this pid with another start token: a reused pid).
+    for run_id in (left, elsewhere):
+        set_owner(store, run_id, store.owner.host, store.owner.pid, "other-boot:1", None)
     assert store.mark_incomplete_runs("line-1") == [left]
     assert store.mark_incomplete_runs("line-1") == []
     verdicts = {r.run_id: r.verdict for r in store.runs()}
