@@ -185,7 +185,12 @@ def test_runs_and_unit_show_escape_sequences_nul_and_overrides_visibly(run, tmp_
     # Rows written past the input readers (another tool, an older knobline): the terminal must not obey them.
     url = f"sqlite:///{tmp_path / 'hostile.sqlite'}"
     hostile.hostile_database(url)
-    for result in (run("runs", "--db", url), run("unit", hostile.SERIAL, "--db", url)):
+    runner = CliRunner()  # color=True: pass escape sequences through as a terminal would get them
+
+    def terminal(*args: str):
+        return runner.invoke(main, list(args), catch_exceptions=False, color=True)
+
+    for result in (terminal("runs", "--db", url), terminal("unit", hostile.SERIAL, "--db", url)):
         assert result.exit_code == 0, result.stderr
         assert hostile.raw_characters_in(result.output) == []
         assert hostile.VISIBLE_PASS + "\\x00<U+202E>0001-XX" in result.stdout

@@ -17,6 +17,11 @@ from fixture.store import open_store
 from tests.reporting import hostile
 
 
+def terminal(*args: str):
+    # color=True: click passes escape sequences through, as it does to a real terminal.
+    return CliRunner().invoke(main, list(args), color=True)
+
+
 @pytest.fixture
 def hostile_db(tmp_path: Path) -> tuple[str, int]:
     url = f"sqlite:///{tmp_path / 'hostile.sqlite'}"
@@ -42,7 +47,7 @@ def test_certificate_shows_hostile_text_visibly_and_signs_the_original(hostile_d
 
 def test_batch_report_shows_hostile_text_visibly(hostile_db, tmp_path) -> None:
     url, _ = hostile_db
-    result = CliRunner().invoke(main, ["report", "batch", "--db", url, "--out", str(tmp_path)])
+    result = terminal("report", "batch", "--db", url, "--out", str(tmp_path))
     assert result.exit_code == 0, result.output
     html = (tmp_path / "batch-report.html").read_text(encoding="utf-8")
     assert hostile.raw_characters_in(html) == []
@@ -54,18 +59,16 @@ def test_batch_report_shows_hostile_text_visibly(hostile_db, tmp_path) -> None:
 
 def test_certificate_command_output_shows_the_serial_visibly(hostile_db, key, tmp_path) -> None:
     url, run_id = hostile_db
-    result = CliRunner().invoke(main, ["certificate", f"run:{run_id}", "--db", url, "--key", str(key.path),
-                                       "--out", str(tmp_path)])
+    result = terminal("certificate", f"run:{run_id}", "--db", url, "--key", str(key.path), "--out", str(tmp_path))
     assert result.exit_code == 0, result.output
     assert hostile.raw_characters_in(result.output) == [] and hostile.VISIBLE_PASS in result.stdout
-    verified = CliRunner().invoke(main, ["verify", str(next(tmp_path.glob("*.html"))), "--db", url, "--key",
-                                         str(key.path)])
+    verified = terminal("verify", str(next(tmp_path.glob("*.html"))), "--db", url, "--key", str(key.path))
     assert verified.exit_code == 0 and hostile.raw_characters_in(verified.output) == []
 
 
 def test_an_error_quoting_outside_text_is_shown_visibly(hostile_db, tmp_path) -> None:
     url, _ = hostile_db
-    result = CliRunner().invoke(main, ["report", "batch", "--db", url, "--templates", f"{tmp_path}/x\x1b[31m"])
+    result = terminal("report", "batch", "--db", url, "--templates", f"{tmp_path}/x\x1b[31m")
     assert result.exit_code == 2
     assert hostile.raw_characters_in(result.stderr) == [] and "x\\x1b[31m" in result.stderr
 
