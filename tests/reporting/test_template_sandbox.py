@@ -84,12 +84,13 @@ def test_reading_the_key_file_is_refused_every_way(db_url, key, tmp_path) -> Non
     assert "'open' is undefined" in refusal(db_url, key, tmp_path, f"{{{{ open('{path}').read() }}}}")
 
 
+@pytest.mark.parametrize("statement", ["include '{}'", "extends '{}'", "import '{}' as other"])
 @pytest.mark.parametrize("name", ["{key}", "../keys/station-ed25519.pem", "../../{rel}"])
-def test_include_of_a_file_outside_the_template_folders_is_refused(db_url, key, tmp_path, name) -> None:
+def test_a_file_outside_the_template_folders_is_never_loaded(db_url, key, tmp_path, name, statement) -> None:
     # jinja2's FileSystemLoader refuses absolute names and any ".." path segment (jinja2.loaders.split_template_path).
     name = name.format(key=key.path, rel=key.path.relative_to(tmp_path.parent))
-    (tmp_path / "keys" / "copy.j2").write_text("copied", encoding="utf-8")
-    message = refusal(db_url, key, tmp_path, f"{{% include '{name}' %}}{{% include '_tamper_evidence.html.j2' %}}")
+    tag = "{% " + statement.format(name) + " %}"
+    message = refusal(db_url, key, tmp_path, f"{tag}{{% include '_tamper_evidence.html.j2' %}}")
     assert re.search(r"certificate\.html\.j2 line 1: expected a template named .* in the template folders, "
                      r"found none", message), message
 
