@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import io
+import json
 from pathlib import Path
 
 import pytest
@@ -85,3 +86,14 @@ def test_operator_view_shows_step_names_messages_and_serial_visibly() -> None:
     banner = final_banner("pass", hostile.SERIAL, 7)
     assert hostile.raw_characters_in(out.getvalue() + banner) == []
     assert hostile.VISIBLE_PASS in banner and "power<U+202A> up" in out.getvalue()
+
+
+def test_every_commands_text_output_keeps_line_breaks_and_shows_the_rest(capsys) -> None:
+    # The last net under every command's text (instrument identities, lot codes, yields by lot...).
+    from fixture.commands._common import emit
+
+    emit({"serial": hostile.SERIAL}, False, lambda: f"counter: {hostile.FAKE_PASS}\nlot {hostile.LOT}")
+    out = capsys.readouterr().out
+    assert out == f"counter: {hostile.VISIBLE_PASS}\nlot C1-\\x9b31m\\x7f\n"
+    emit({"serial": hostile.SERIAL}, True, lambda: "")
+    assert json.loads(capsys.readouterr().out) == {"serial": hostile.SERIAL}  # JSON: the data, exactly
