@@ -13,6 +13,7 @@ from click.testing import CliRunner
 from fixture.cli import main
 from fixture.store import DB_ENV_VAR, DecoderConstants, MeasurementRecord, open_store
 from tests.json_keys import all_keys, documented_json_keys
+from tests.reporting import hostile
 
 DESIGN_SHA = hashlib.sha256(b"a design file").hexdigest()
 SEQUENCE_SHA = hashlib.sha256(b"a sequence file").hexdigest()
@@ -178,3 +179,24 @@ def test_reading_a_database_that_does_not_exist_does_not_create_it(run, tmp_path
     assert "no runs recorded" in result.stdout
     assert run("unit", "PW22-000001", "--db", str(missing)).exit_code == 2
     assert not missing.exists()
+
+
+def test_runs_and_unit_show_escape_sequences_nul_and_overrides_visibly(run, tmp_path: Path) -> None:
+    # Rows written past the input readers (another tool, an older knobline): the terminal must not obey them.
+    url = f"sqlite:///{tmp_path / 'hostile.sqlite'}"
+    hostile.hostile_database(url)
+    runner = CliRunner()  # color=True: pass escape sequences through as a terminal would get them
+
+    def terminal(*args: str):
+        return runner.invoke(main, list(args), catch_exceptions=False, color=True)
+
+    for result in (terminal("runs", "--db", url), terminal("unit", hostile.SERIAL, "--db", url)):
+        assert result.exit_code == 0, result.stderr
+        assert hostile.raw_characters_in(result.output) == []
+        assert hostile.VISIBLE_PASS + "\\x00<U+202E>0001-XX" in result.stdout
+        assert "ana<U+2066><U+200F>" in result.stdout
+    history = run("unit", hostile.SERIAL, "--db", url).stdout
+    assert "C1-\\x9b31m\\x7f" in history and "power<U+202A> up" in history and "ok\\x1b]0;owned\\x07\\x0d" in history
+    # JSON stays exact data (RFC 8259 escapes), and ASCII: no raw control byte on the terminal either.
+    as_json = run("runs", "--db", url, "--json").stdout
+    assert as_json.isascii() and json.loads(as_json)["runs"][0]["serial"] == hostile.SERIAL
