@@ -81,3 +81,33 @@ def test_the_operator_sees_a_station_fault_apart_from_a_unit_fail_and_what_to_do
     assert "STATION FAULT (not the unit's fault)" in result.stderr
     assert "the unit was NOT judged" in result.stdout and "test this unit again" in result.stdout
     assert "!!!!" in result.stdout and "====" not in result.stdout
+
+
+def test_demo_counts_a_unit_the_station_could_not_judge_apart_and_never_as_pass(tmp_path, monkeypatch) -> None:
+    import math
+
+    import fixture.commands.demo as demo_command
+
+    real_run_unit = demo_command.run_unit
+    victim = {}
+
+    def run_unit(plan, sequence, station, store, *, serial, **kwargs):
+        victim.setdefault("serial", serial)  # the batch's first unit meets a counter answering NaN
+        if serial != victim["serial"]:
+            return real_run_unit(plan, sequence, station, store, serial=serial, **kwargs)
+        counter = station.driver("counter")
+        counter.read = lambda: math.nan  # an instance attribute shadows the driver's method for this unit
+        try:
+            return real_run_unit(plan, sequence, station, store, serial=serial, **kwargs)
+        finally:
+            del counter.read
+
+    monkeypatch.setattr(demo_command, "run_unit", run_unit)
+    result = CliRunner().invoke(main, ["demo", "--units", "4", "--seed", "5", "--out", str(tmp_path),
+                                       "--no-reports", "--json"], catch_exceptions=False)
+    assert result.exit_code == 0, result.stderr
+    data = json.loads(result.stdout)
+    assert data["verdicts"]["station-fault"] == 1
+    assert data["not_judged"] == [victim["serial"]]
+    assert {r["serial"]: r["verdict"] for r in data["runs"]}[victim["serial"]] == "station-fault"
+    assert data["first_pass_yield"] == data["verdicts"]["pass"] / 4 and data["verdicts"]["pass"] <= 3
