@@ -45,3 +45,17 @@ def test_a_misspelt_kind_role_or_check_is_refused_when_the_plan_is_built() -> No
 
 def test_each_check_kind_knows_its_knob_and_whether_it_is_relative() -> None:
     assert [(c.knob, c.relative) for c in CheckKind] == [("a", False), ("b", True), ("a", False), ("b", False)]
+
+
+@pytest.mark.parametrize(("verdict", "frame", "action"), [
+    ("pass", "=", "passed every step"), ("fail", "=", "set it aside for repair"),
+    ("station-fault", "!", "the unit was NOT judged: the station is at fault"),
+    ("aborted", "!", "the unit was NOT judged: the run was stopped"),
+])
+def test_the_operator_banner_tells_a_station_fault_from_a_unit_fail_and_says_what_to_do(verdict, frame, action):
+    from fixture.reporting.operator_view import final_banner
+
+    banner = final_banner(verdict, "PW22-000001", 7)
+    lines = banner.splitlines()
+    assert set(lines[0]) == {frame} and set(lines[-1]) == {frame}
+    assert Verdict(verdict).words in lines[1] and action in lines[2]
