@@ -48,7 +48,7 @@ ALLOWED = {
                   "fixture.errors"},
     "instruments": {"fixture.instruments", "fixture.files", "fixture.model", "fixture.errors"},
     "sim": {"fixture.sim", "fixture.instruments", "fixture.files", "fixture.model", "fixture.errors"},
-    "store": {"fixture.store", "fixture.errors"},
+    "store": {"fixture.store", "fixture.model", "fixture.errors"},
     "runner": {"fixture.runner", "fixture.store", "fixture.sim", "fixture.instruments", "fixture.files",
                "fixture.model", "fixture.errors", "fixture._version"},
 }

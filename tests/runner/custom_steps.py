@@ -13,3 +13,49 @@ def wait_forever(context, parameters):
 
 def always(context, parameters):
     return parameters.get("verdict", "pass"), "custom verdict"
+
+
+def raises(context, parameters):
+    """A custom step with a bug in it."""
+    raise ValueError("could not convert string to float: '4.7.1'")
+
+
+def interrupted(context, parameters):
+    raise KeyboardInterrupt
+
+
+def returns(context, parameters):
+    """Returns whatever the test put in ``parameters['value']`` (a string, or a list for a pair)."""
+    value = parameters.get("value")
+    return tuple(value) if isinstance(value, list) else value
+
+
+def sabotage(context, parameters):
+    """Passes, and leaves an instrument misbehaving for every later step the way ``parameters`` say.
+
+    ``role``: counter (its reading), supply (its current reading) or actuator (a move);
+    ``fault``: nan, inf, reset (a socket reset), value-error, overflow (SCPI 9.91E37) or interrupt (Ctrl-C).
+    """
+    import math
+
+    from fixture.errors import OverflowReading
+
+    role, fault = parameters["role"], parameters["fault"]
+    driver = context.station.driver(role)
+    method = {"counter": "read", "supply": "measure_current", "actuator": "move_both"}[role]
+
+    def broken(*args, **kwargs):
+        if fault == "nan":
+            return math.nan
+        if fault == "inf":
+            return float("1E999")
+        if fault == "reset":
+            raise ConnectionResetError(104, "Connection reset by peer")
+        if fault == "value-error":
+            raise ValueError("could not convert string to float: '1.2.3'")
+        if fault == "overflow":
+            raise OverflowReading(f"{role}: 9.91E37 (simulated overflow)")
+        raise KeyboardInterrupt
+
+    setattr(driver, method, broken)
+    return "pass"

@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import datetime as dt
 import os
 import signal
 import sqlite3
@@ -14,36 +13,10 @@ from pathlib import Path
 import pytest
 
 from fixture.errors import InstrumentTimeout
-from fixture.files.sequence_file import load_sequence
-from fixture.files.station_file import load_station
-from fixture.runner.plan import compile_plan
-from fixture.runner.station import open_station
-from fixture.runner.unit_run import run_unit
-from fixture.sim.dut import Defect, build_unit
-from fixture.sim.world import SimulatedWorld
+from fixture.sim.dut import Defect
 from fixture.store import open_store
 
 ROOT = Path(__file__).resolve().parents[2]
-
-
-@pytest.fixture(scope="module")
-def compiled():
-    config = load_station(ROOT / "sequences/demo-station.toml")
-    sequence = load_sequence(ROOT / "sequences/demo-sequence.toml", station=config)
-    return config, sequence, compile_plan(sequence, sequence.design, config)
-
-
-@pytest.fixture()
-def line(compiled, tmp_path):
-    config, sequence, plan = compiled
-    with open_store(str(tmp_path / "results.sqlite")) as store, \
-            open_station(config, today=dt.date(2026, 12, 2)) as station, \
-            SimulatedWorld(station, seed=3) as world:
-        def test_unit(serial: str, *defects: Defect, seed: int = 5):
-            world.insert(build_unit(sequence.design, serial, seed=seed, defects=defects))
-            return run_unit(plan, sequence, station, store, serial=serial, lots={}, operator="test",
-                            sleep=lambda s: None)
-        yield test_unit, store, station
 
 
 def first_failing_step(outcome) -> str:

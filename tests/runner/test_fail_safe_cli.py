@@ -1,0 +1,113 @@
+"""`knobline test` exits 3 (station fault) or 4 (aborted) for every way a run ends early, and stores no pass.
+
+Exit codes are the ones README and `knobline test --help` document (ours; common practice, no source).
+Faults are injected by a custom step (tests/runner/custom_steps.py) that leaves an instrument misbehaving
+for the rest of the run, or by a custom step that is itself broken.
+"""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import pytest
+from click.testing import CliRunner
+
+from fixture.cli import main
+from fixture.store import open_store
+
+ROOT = Path(__file__).resolve().parents[2]
+
+
+def sequence_with(tmp_path: Path, call: str, parameters: dict[str, str], *, first: bool) -> Path:
+    """The demo sequence with a custom step calling ``call`` first or right after the power-up."""
+    text = (ROOT / "sequences/demo-sequence.toml").read_text(encoding="utf-8")
+    text = text.replace('design = "demo-panel.toml"', f'design = "{ROOT / "sequences/demo-panel.toml"}"')
+    params = "".join(f'{k} = "{v}"\n' for k, v in parameters.items())
+    step = f'[[steps]]\nkind = "custom"\nname = "injected"\ncall = "{call}"\n[steps.parameters]\n{params}\n'
+    head, sep, rest = text.partition("\n[[steps]]")
+    if first:
+        text = head + "\n" + step + sep + rest
+    else:
+        second = rest.index("\n[[steps]]") + 1
+        text = head + sep + rest[:second] + step + rest[second:]
+    path = tmp_path / "injected.toml"
+    path.write_text(text, encoding="utf-8")
+    return path
+
+
+CASES = [
+    ("sabotage", {"role": "counter", "fault": "nan"}, False, 3),
+    ("sabotage", {"role": "counter", "fault": "inf"}, False, 3),
+    ("sabotage", {"role": "counter", "fault": "reset"}, False, 3),
+    ("sabotage", {"role": "counter", "fault": "value-error"}, False, 3),
+    ("sabotage", {"role": "counter", "fault": "overflow"}, False, 3),
+    ("sabotage", {"role": "supply", "fault": "overflow"}, True, 3),
+    ("sabotage", {"role": "supply", "fault": "nan"}, True, 3),
+    ("sabotage", {"role": "actuator", "fault": "overflow"}, False, 3),
+    ("sabotage", {"role": "actuator", "fault": "reset"}, False, 3),
+    ("sabotage", {"role": "counter", "fault": "interrupt"}, False, 4),
+    ("sabotage", {"role": "actuator", "fault": "interrupt"}, False, 4),
+    ("raises", {}, False, 3),
+    ("returns", {"value": "maybe"}, False, 3),
+    ("interrupted", {}, False, 4),
+]
+
+
+@pytest.mark.parametrize(("function", "parameters", "first", "exit_code"), CASES,
+                         ids=[f"{f}-{'-'.join(p.values())}" for f, p, _, _ in CASES])
+def test_knobline_test_exits_3_or_4_and_stores_no_pass_when_a_run_ends_early(tmp_path, function, parameters,
+                                                                          first, exit_code) -> None:
+    sequence = sequence_with(tmp_path, f"tests.runner.custom_steps:{function}", parameters, first=first)
+    db = tmp_path / "results.sqlite"
+    result = CliRunner().invoke(main, ["test", str(sequence), "--serial", "PW22-000600", "--db", str(db),
+                                       "--operator", "t", "--json"], catch_exceptions=False)
+    assert result.exit_code == exit_code, result.stderr
+    data = json.loads(result.stdout)
+    expected = {3: "station-fault", 4: "aborted"}[exit_code]
+    assert data["verdict"] == expected
+    with open_store(str(db)) as store:
+        run = store.run(data["run_id"])
+        assert run.summary.verdict == expected
+        assert run.steps[-1].verdict == expected and "pass" not in {s.verdict for s in run.steps[2:]}
+
+
+def test_the_operator_sees_a_station_fault_apart_from_a_unit_fail_and_what_to_do(tmp_path) -> None:
+    sequence = sequence_with(tmp_path, "tests.runner.custom_steps:sabotage", {"role": "counter", "fault": "nan"},
+                             first=False)
+    result = CliRunner().invoke(main, ["test", str(sequence), "--serial", "PW22-000601", "--db",
+                                       str(tmp_path / "r.sqlite"), "--operator", "t"], catch_exceptions=False)
+    assert result.exit_code == 3
+    assert "STATION FAULT (not the unit's fault)" in result.stderr
+    assert "the unit was NOT judged" in result.stdout and "test this unit again" in result.stdout
+    assert "!!!!" in result.stdout and "====" not in result.stdout
+
+
+def test_demo_counts_a_unit_the_station_could_not_judge_apart_and_never_as_pass(tmp_path, monkeypatch) -> None:
+    import math
+
+    import fixture.commands.demo as demo_command
+
+    real_run_unit = demo_command.run_unit
+    victim = {}
+
+    def run_unit(plan, sequence, station, store, *, serial, **kwargs):
+        victim.setdefault("serial", serial)  # the batch's first unit meets a counter answering NaN
+        if serial != victim["serial"]:
+            return real_run_unit(plan, sequence, station, store, serial=serial, **kwargs)
+        counter = station.driver("counter")
+        counter.read = lambda: math.nan  # an instance attribute shadows the driver's method for this unit
+        try:
+            return real_run_unit(plan, sequence, station, store, serial=serial, **kwargs)
+        finally:
+            del counter.read
+
+    monkeypatch.setattr(demo_command, "run_unit", run_unit)
+    result = CliRunner().invoke(main, ["demo", "--units", "4", "--seed", "5", "--out", str(tmp_path),
+                                       "--no-reports", "--json"], catch_exceptions=False)
+    assert result.exit_code == 0, result.stderr
+    data = json.loads(result.stdout)
+    assert data["verdicts"]["station-fault"] == 1
+    assert data["not_judged"] == [victim["serial"]]
+    assert {r["serial"]: r["verdict"] for r in data["runs"]}[victim["serial"]] == "station-fault"
+    assert data["first_pass_yield"] == data["verdicts"]["pass"] / 4 and data["verdicts"]["pass"] <= 3
