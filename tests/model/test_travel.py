@@ -146,3 +146,43 @@ def test_plugin_models_own_rule_is_checked_between_the_stops(tmp_path: Path) -> 
     assert problem.key == "parts.r1"
     boundary = 100.0 * (1.0 - 480.0 / 9960.0)
     assert f"at knob A {boundary:.4g} % to 100 % of rotation" in problem.message
+
+
+class _SlicedRamp:
+    """A made-up model where both knobs matter: knob A sets the ramp's top (0.5..1 V), knob B the
+    threshold (0..1 V, falling as B turns CW); the output is high while the ramp is above the threshold."""
+
+    name = "test-sliced-ramp"
+    description = "ramp top from knob A, threshold from knob B"
+    parameters = ()
+
+    def evaluate(self, values):
+        from fixture.model.circuits.base import Signal
+
+        top = 0.5 + 0.5 * values["knob_a_cw_ohm"] / (values["knob_a_ccw_ohm"] + values["knob_a_cw_ohm"])
+        th = values["knob_b_cw_ohm"] / (values["knob_b_ccw_ohm"] + values["knob_b_cw_ohm"])
+        period = np.full(np.broadcast(top, th).shape, 1e-3)
+        # a ramp 0..top: time above th is the fraction (top - th)/top of the period, clipped
+        return Signal(period_s=period, high_s=period * np.clip((top - th) / top, 0.0, 1.0),
+                      internals={"v_threshold": th, "v_low": np.zeros_like(top), "v_high": top})
+
+    def check(self, values):
+        return []
+
+
+def test_a_dead_zone_that_depends_on_both_knobs_names_the_other_knobs_range() -> None:
+    # Stuck low where the threshold is at or above the ramp's top (comparator relation, from memory):
+    # with linear pots of full travel and no end resistance, th = 1 - rB and top = 1 - rA/2, so the
+    # output sticks for rB <= rA/2: knob B up to 50 % when knob A is at 100 %, only B = 0 with A at 0.
+    design = replace(load_design(DEMO), model=_SlicedRamp())
+    full = PotGeometry("linear", electrical_travel=1.0, end_resistance_ohm=0.0)
+    knobs = {k: replace(v, geometry=full) for k, v in design.knobs.items()}
+    ranges = stuck_ranges(replace(design, knobs=knobs))
+    joint = [r for r in ranges if r.other_pct is not None]
+    assert len(joint) == 1 and joint[0].knob == "b" and joint[0].state == LOW
+    assert joint[0].last_pct == pytest.approx(50.0, abs=1e-4)
+    assert joint[0].other_pct[1] == 100.0
+    # Wherever knob A sits, only the very ends of knob B stick: B = 0 (threshold 1 V, at least the top)
+    # and B = 100 % (threshold 0 V, at the ramp's bottom: stuck high).
+    assert sorted((r.state, r.first_pct) for r in ranges if r.other_pct is None) == [(LOW, 0.0), (HIGH, 100.0)]
+    assert all(r.first_pct == r.last_pct for r in ranges if r.other_pct is None)
