@@ -75,7 +75,8 @@ def test_rss_band_wider_than_worst_case_is_capped_at_worst_case_and_said() -> No
     assert plain.low < wc.low.value  # the case this test is about
     assert row.low == pytest.approx(wc.low.value, rel=1e-12) and row.uncapped_low == pytest.approx(plain.low)
     assert row.high == pytest.approx(min(plain.high, wc.high.value), rel=1e-12)
-    assert any("capped at worst case" in n and "bounds every unit" in n for n in row.notes)
+    assert any("capped at worst case" in n and "bounds every unit" in n for n in row.capping)
+    assert set(row.capping) <= set(row.notes)
     for r in table.rows:  # no row anywhere is wider than worst case
         assert r.uncapped_low is None or r.uncapped_low < r.low
         assert r.uncapped_high is None or r.uncapped_high > r.high
