@@ -11,6 +11,8 @@ import pytest
 from fixture.files.sequence_file import Sequence, load_sequence
 from fixture.files.station_file import load_station
 from fixture.files.toml_reader import FileProblems
+from fixture.model.tolerance.space import KnobSetting, ParameterSpace
+from fixture.model.tolerance.worst_case import worst_case
 from fixture.runner.plan import (
     InstrumentSetting,
     PointLimits,
@@ -92,10 +94,38 @@ def test_explicit_limits_are_the_tolerance_limits(tmp_path: Path) -> None:
     path = edited_copy(DEMO, tmp_path, 'from = "design"\nmethod = "worst-case"\ndecision_rule = "guarded"\n',
                        'from = "explicit"\ndecision_rule = "simple"\n\n[steps.limits.duty_pct]\n'
                        'low = 1\nhigh = 99\n')
-    _, plan = compiled(path)
+    sequence, plan = compiled(path)
+    design = sequence.design
+    space = ParameterSpace(design, design.conditions["production"])
     for point in plan.steps[2].points:
-        assert (point.limits.tolerance_low, point.limits.tolerance_high) == (1.0, 99.0)
+        # Worst case bounds every unit the tolerances allow (extreme-value analysis; from memory), so an
+        # explicit limit beyond it is capped there, and the point's note says so.
+        setting = KnobSetting("b", point.knob_b_pct, point.knob_a_pct, point.knob_b_pct)
+        wc = worst_case(lambda x, s=setting: space.quantity(x, s, "duty_pct"), space.lower, space.upper,
+                        space.centre_point())
+        assert point.limits.tolerance_low == pytest.approx(max(1.0, wc.low.value), rel=1e-12)
+        assert point.limits.tolerance_high == pytest.approx(min(99.0, wc.high.value), rel=1e-12)
         assert point.limits.basis == "explicit"
+        if wc.low.value > 1.0:
+            assert "explicit low limit 1 % lies beyond the worst case" in point.limits.note
+            assert "capped at worst case" in point.limits.note
+
+
+def test_explicit_limits_that_would_accept_a_stuck_output_are_refused(tmp_path: Path) -> None:
+    # A sequence on a design whose worst corner sticks high at knob B 100 % (R7 at 11.5k): a duty window
+    # reaching 100 % would pass a unit whose output never goes low.
+    design = edited_copy(Path("sequences/demo-panel.toml"), tmp_path, 'value = "12k"', 'value = "11.5k"')
+    path = edited_copy(DEMO, tmp_path, 'from = "design"\nmethod = "worst-case"\ndecision_rule = "guarded"\n',
+                       'from = "explicit"\ndecision_rule = "simple"\n\n[steps.limits.duty_pct]\n'
+                       'low = 1\nhigh = 100\n')
+    path.write_text(path.read_text(encoding="utf-8").replace('design = "demo-panel.toml"', f'design = "{design}"'),
+                    encoding="utf-8")
+    with pytest.raises(FileProblems) as caught:
+        compiled(path)
+    [problem] = caught.value.problems
+    assert '(knob-matrix "duty at knob B stops").limits: expected limits that cannot accept a stuck output' \
+        in problem.message
+    assert "stop B 100 %" in problem.message and "stuck high" in problem.message and "RV2" in problem.message
 
 
 def test_gate_by_cycles_is_recorded_and_costs_uncertainty_like_the_same_time(tmp_path: Path) -> None:
