@@ -160,6 +160,9 @@ def test_a_run_whose_verdict_cannot_be_stored_is_left_for_the_incomplete_sweep_n
     assert outcome.verdict is Verdict.STATION_FAULT
     assert bench.store.run(outcome.run_id).summary.verdict == "running"
     monkeypatch.undo()
+    # This process still owns the run, so the sweep leaves it alone; once the owner is gone it is swept.
+    assert outcome.run_id not in bench.store.mark_incomplete_runs(bench.station.config.name)
+    monkeypatch.setattr("fixture.store.lease.owner_gone", lambda *args, **kwargs: True)
     assert outcome.run_id in bench.store.mark_incomplete_runs(bench.station.config.name)
 
 

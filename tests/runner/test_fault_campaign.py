@@ -48,8 +48,6 @@ def test_no_exception_escapes_a_run(campaign) -> None:
 SUPPLY_ZERO = ("supply", FaultKind.ZERO)
 
 
-@pytest.mark.xfail(strict=True, reason="needs the fail-safe runner from branch i8-runner (counter overflow "
-                                       "cross-checked with the scope)")
 def test_no_good_unit_is_failed_by_an_impossible_or_missing_reading(campaign) -> None:
     failed = [r for r in campaign.good_failed() if (r.case.role, r.case.kind) != SUPPLY_ZERO]
     assert failed == [], campaign.summary()
