@@ -172,13 +172,14 @@ def classify(run: Callable[[], Any]) -> tuple[int, str]:
         raise TimeoutError("case over the time limit")
 
     old = signal.signal(signal.SIGALRM, alarm)
-    signal.alarm(LIMIT_S)
     try:
-        run()
-        return 0, "ok"
-    except TimeoutError:
-        return -1, "hang"
-    except MemoryError:
+        signal.alarm(LIMIT_S)
+        try:
+            run()
+            return 0, "ok"
+        finally:
+            signal.alarm(0)
+    except (TimeoutError, MemoryError):  # the alarm may ring while a huge read is being freed
         return -1, "hang"
     except StationFault as exc:
         return 3, f"station: {exc.message[:120]}"
@@ -187,7 +188,6 @@ def classify(run: Callable[[], Any]) -> tuple[int, str]:
     except Exception as exc:  # what the CLI turns into "internal error"
         return 3, f"internal {type(exc).__name__}: {str(exc)[:120]}"
     finally:
-        signal.alarm(0)
         signal.signal(signal.SIGALRM, old)
 
 
