@@ -216,5 +216,6 @@ def test_every_leaf_set_to_nan_is_refused_naming_its_key(tmp_path: Path, name: s
             (file.parent / "demo-panel.toml").write_bytes((SHIPPED / "demo-panel.toml").read_bytes())
         code, stderr = run_check(tmp_path, [*option, str(file)])
         assert_clean_answer(code, stderr, f"{path} <- nan", True)
-        key = ".".join(str(p) for p in path if isinstance(p, str))
-        assert any(part in stderr for part in (key.split(".")[-1],)), f"{path}: {stderr}"
+        last = next(p for p in reversed(path) if isinstance(p, str))
+        naming = [line for line in stderr.splitlines() if f".{last}" in line or f"{last}:" in line]
+        assert len(naming) == 1, f"{path}: one line naming the key expected\n{stderr}"
