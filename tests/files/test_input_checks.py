@@ -22,7 +22,7 @@ from fixture.files.design_file import load_design
 from fixture.files.serial_pattern import MAX_SERIAL_CHARS, PatternError, compile_serial_pattern
 from fixture.files.station_file import load_station
 from fixture.files.text import check_printable, text_problem
-from fixture.files.toml_reader import MAX_INPUT_BYTES, read_input_bytes
+from fixture.files.toml_reader import MAX_INPUT_BYTES, FileProblems, read_input_bytes
 from fixture.files.traveller import read_traveller
 from tests.files.edits import edited_copy, only_problem
 
@@ -88,6 +88,16 @@ def test_a_file_over_the_size_limit_is_refused_with_the_limit_in_the_message(tmp
 def test_impossible_design_values_are_one_line_with_key_expectation_and_value(tmp_path, old, new, line_end) -> None:
     line = only_problem(load_design, edited_copy(DESIGN, tmp_path, old, new))
     assert line.endswith(line_end), line
+
+
+def test_an_empty_knob_table_lists_the_knobs_missing_keys(tmp_path: Path) -> None:
+    text = DESIGN.read_text(encoding="utf-8")
+    start, end = text.index("[knobs.b]"), text.index("# ---- product specification")
+    path = tmp_path / "demo-panel.toml"
+    path.write_text(text[:start] + "[knobs.b]\n\n" + text[end:], encoding="utf-8")
+    with pytest.raises(FileProblems) as info:
+        load_design(path)
+    assert [p.key for p in info.value.problems] == ["knobs.b.resistance", "knobs.b.stops"]
 
 
 def test_a_hundred_thousand_stops_are_refused_with_the_limit(tmp_path: Path) -> None:
