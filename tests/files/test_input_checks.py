@@ -212,3 +212,14 @@ def test_catastrophic_backtracking_patterns_answer_on_the_longest_serial(pattern
     serial = pattern[1] * (MAX_SERIAL_CHARS - 1) + "!"
     assert compile_serial_pattern(pattern).matches(serial) is False
     assert compile_serial_pattern(pattern).matches(pattern[1] * 10_000) is False  # beyond the length limit
+
+
+@pytest.mark.parametrize(("command", "option", "value"), [
+    ("limits", "--gate-time", "nan"), ("limits", "--gate-time", "0"), ("limits", "--guard-multiple", "nan"),
+    ("limits", "--target-tur", "nan"), ("measure", "--gate-time", "nan"), ("limits", "--gate-time", "1e9"),
+])
+def test_command_line_gate_times_and_multiples_must_be_finite_and_in_range(command, option, value) -> None:
+    # IEEE 754: nan compares false with everything, so a plain range check lets it through
+    result = CliRunner().invoke(main, [command, option, value])
+    assert result.exit_code == 2, result.output
+    assert f"Invalid value for '{option}'" in result.stderr
