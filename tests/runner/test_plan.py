@@ -4,11 +4,13 @@ from __future__ import annotations
 
 import hashlib
 import math
+from dataclasses import replace
 from pathlib import Path
 
 import pytest
 
 from fixture.files.sequence_file import Sequence, load_sequence
+from fixture.model.decision import DecisionRule
 from fixture.files.station_file import load_station
 from fixture.files.toml_reader import FileProblems
 from fixture.model.tolerance.space import KnobSetting, ParameterSpace
@@ -181,8 +183,12 @@ def test_compiling_for_a_station_without_a_needed_role_is_refused(demo: tuple[Se
 
 
 def test_a_gate_too_short_for_any_acceptance_zone_is_a_sequence_problem(tmp_path: Path) -> None:
-    path = edited_copy(DEMO, tmp_path, 'guard_multiple = 1\n', "guard_multiple = 1e9\n")
-    sequence = load_sequence(path, station=STATION, search_dirs=SHIPPED)
+    # The sequence reader refuses r above 10; the compiler must still refuse a guard band that leaves no
+    # acceptance zone, so the rule is set past the reader here.
+    shipped = load_sequence(DEMO, station=STATION, search_dirs=SHIPPED)
+    step = shipped.steps[1]
+    wide = replace(step, limits=replace(step.limits, rule=DecisionRule(kind="guarded", guard_multiple=1e9)))
+    sequence = replace(shipped, steps=(*shipped.steps[:1], wide, *shipped.steps[2:]))
     with pytest.raises(FileProblems) as info:
         compile_plan(sequence, sequence.design, STATION)
     assert all('steps[1] (knob-matrix "frequency at knob A stops").limits: expected an acceptance zone' in str(p)
