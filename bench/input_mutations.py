@@ -22,7 +22,6 @@ import argparse
 import copy
 import datetime as dt
 import json
-import math
 import os
 import random
 import resource
@@ -34,38 +33,15 @@ from collections.abc import Callable
 from pathlib import Path
 from typing import Any
 
+# the bench shares the tests' TOML writer (it imports nothing of fixture, so any checkout can be measured)
+sys.path.insert(0, str(Path(__file__).resolve().parent.parent))
+from tests.files.toml_text import toml_text  # noqa: E402
+
 LIMIT_S = 20
 TEXT_KEYS = {"name", "revision", "ref", "label", "certificate", "lab", "notes", "site", "make", "model", "resource",
              "profile", "backend", "description", "call", "maker", "design", "kind", "quantity", "knob",
              "distribution", "taper", "instrument", "decision_rule", "method", "condition", "from", "scheme_a",
              "scheme_b", "serial_pattern", "requires", "measure"}
-
-
-def toml_value(value: Any) -> str:
-    """One TOML value, tables inline (enough for every document the readers take)."""
-    if isinstance(value, bool):
-        return "true" if value else "false"
-    if isinstance(value, int):
-        return str(value)
-    if isinstance(value, float):
-        if math.isnan(value):
-            return "nan"
-        if math.isinf(value):
-            return "inf" if value > 0 else "-inf"
-        return repr(value)
-    if isinstance(value, str):
-        return json.dumps(value).replace("\x7f", "\\u007f")
-    if isinstance(value, (dt.date, dt.datetime)):
-        return value.isoformat()
-    if isinstance(value, list):
-        return "[" + ", ".join(toml_value(v) for v in value) + "]"
-    if isinstance(value, dict):
-        return "{" + ", ".join(f"{json.dumps(k)} = {toml_value(v)}" for k, v in value.items()) + "}"
-    raise TypeError(type(value))
-
-
-def toml_text(doc: dict[str, Any]) -> str:
-    return "".join(f"{json.dumps(k)} = {toml_value(v)}\n" for k, v in doc.items())
 
 
 def leaves(doc: Any, path: tuple = ()) -> list[tuple]:

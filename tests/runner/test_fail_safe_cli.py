@@ -111,3 +111,16 @@ def test_demo_counts_a_unit_the_station_could_not_judge_apart_and_never_as_pass(
     assert data["not_judged"] == [victim["serial"]]
     assert {r["serial"]: r["verdict"] for r in data["runs"]}[victim["serial"]] == "station-fault"
     assert data["first_pass_yield"] == data["verdicts"]["pass"] / 4 and data["verdicts"]["pass"] <= 3
+
+
+def test_a_software_fault_leaves_its_traceback_in_the_log_and_the_operator_is_told_where(tmp_path, monkeypatch):
+    log = tmp_path / "station.log"
+    monkeypatch.setenv("KNOBLINE_LOG", str(log))
+    sequence = sequence_with(tmp_path, "tests.runner.custom_steps:raises", {}, first=False)
+    result = CliRunner().invoke(main, ["test", str(sequence), "--serial", "PW22-000602", "--db",
+                                       str(tmp_path / "r.sqlite"), "--operator", "t"], catch_exceptions=False)
+    assert result.exit_code == 3
+    assert f"details for the test engineer: {log.resolve()}" in result.stderr
+    text = log.read_text(encoding="utf-8")
+    assert "Traceback (most recent call last)" in text
+    assert "ValueError: could not convert string to float: '4.7.1'" in text
