@@ -124,3 +124,15 @@ def test_a_software_fault_leaves_its_traceback_in_the_log_and_the_operator_is_to
     text = log.read_text(encoding="utf-8")
     assert "Traceback (most recent call last)" in text
     assert "ValueError: could not convert string to float: '4.7.1'" in text
+
+
+def test_an_instrument_fault_is_written_to_the_log_with_its_run_and_step(tmp_path, monkeypatch):
+    log = tmp_path / "station.log"
+    monkeypatch.setenv("KNOBLINE_LOG", str(log))
+    sequence = sequence_with(tmp_path, "tests.runner.custom_steps:sabotage", {"role": "counter", "fault": "nan"},
+                             first=False)
+    result = CliRunner().invoke(main, ["test", str(sequence), "--serial", "PW22-000603", "--db",
+                                       str(tmp_path / "r.sqlite"), "--operator", "t"], catch_exceptions=False)
+    assert result.exit_code == 3
+    text = log.read_text(encoding="utf-8")
+    assert "(PW22-000603) step 3 'frequency at knob A stops': station fault: counter: reading nan" in text
