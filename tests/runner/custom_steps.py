@@ -59,3 +59,11 @@ def sabotage(context, parameters):
 
     setattr(driver, method, broken)
     return "pass"
+
+
+def exits(context, parameters):
+    """A custom step (or a library it calls) that ends the process with ``sys.exit(code)``."""
+    import sys
+
+    sys.exit(int(parameters.get("code", "0")))
+

@@ -136,3 +136,20 @@ def test_an_instrument_fault_is_written_to_the_log_with_its_run_and_step(tmp_pat
     assert result.exit_code == 3
     text = log.read_text(encoding="utf-8")
     assert "(PW22-000603) step 3 'frequency at knob A stops': station fault: counter: reading nan" in text
+
+
+def test_a_custom_step_that_calls_sys_exit_0_ends_the_run_station_fault_and_knobline_test_exits_3(tmp_path):
+    # exit 0 means "the unit passed" to whatever drives the line; a custom step ending the process must
+    # not say that (README "Exit codes"; the project's fail-safe rule, no source)
+    sequence = sequence_with(tmp_path, "tests.runner.custom_steps:exits", {"code": "0"}, first=False)
+    db = tmp_path / "results.sqlite"
+    result = CliRunner().invoke(main, ["test", str(sequence), "--serial", "PW22-000604", "--db", str(db),
+                                       "--operator", "t", "--json"], catch_exceptions=False)
+    assert result.exit_code == 3, result.stderr
+    data = json.loads(result.stdout)
+    assert data["verdict"] == "station-fault"
+    with open_store(str(db)) as store:
+        run = store.run(data["run_id"])
+        assert run.summary.verdict == "station-fault"
+        assert "SystemExit" in run.steps[-1].message
+
