@@ -67,3 +67,12 @@ def exits(context, parameters):
 
     sys.exit(int(parameters.get("code", "0")))
 
+
+def terminated(context, parameters):
+    """The process is sent SIGTERM (a supervisor stopping it) in the middle of a run."""
+    import os
+    import signal
+
+    os.kill(os.getpid(), signal.SIGTERM)
+    time.sleep(float(parameters.get("seconds", 30)))  # the signal arrives during this wait
+    return "pass"

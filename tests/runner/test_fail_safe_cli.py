@@ -153,3 +153,28 @@ def test_a_custom_step_that_calls_sys_exit_0_ends_the_run_station_fault_and_knob
         assert run.summary.verdict == "station-fault"
         assert "SystemExit" in run.steps[-1].message
 
+
+def test_sigterm_mid_run_ends_the_run_station_fault_switches_the_supply_off_and_exits_3(tmp_path):
+    # A supervisor's SIGTERM is not the operator's Ctrl-C: the run ended early, so station-fault, exit 3
+    # (README "Verdicts", "Exit codes"); the process must not die leaving the run running and the unit powered.
+    import subprocess
+    import sys
+
+    sequence = sequence_with(tmp_path, "tests.runner.custom_steps:terminated", {"seconds": "30"}, first=False)
+    db = tmp_path / "results.sqlite"
+    code = ("import sys; import fixture.instruments.supply as s; real = s.Supply.output\n"
+            "def output(self, on):\n    real(self, on); print('supply output', on, file=sys.stderr, flush=True)\n"
+            "s.Supply.output = output\n"
+            "from fixture.cli import main; main()")
+    result = subprocess.run([sys.executable, "-c", code, "test", str(sequence), "--serial", "PW22-000605",
+                             "--db", str(db), "--operator", "t", "--json"], capture_output=True, text=True,
+                            timeout=120, cwd=ROOT)
+    assert result.returncode == 3, result.stderr
+    assert result.stderr.rstrip().count("supply output False") >= 1
+    assert result.stderr.index("supply output True") < result.stderr.rindex("supply output False")
+    with open_store(str(db)) as store:
+        (summary,) = store.runs(limit=5)
+        run = store.run(summary.run_id)
+        assert run.summary.verdict == "station-fault"
+        assert "pass" not in {s.verdict for s in run.steps[1:]}
+        assert "SIGTERM" in run.steps[-1].message
