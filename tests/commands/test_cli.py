@@ -164,16 +164,32 @@ def test_station_with_an_expired_instrument_is_a_station_fault(run) -> None:
     assert "knobline: station fault: scope" in result.stderr and "TCL-26-03981" in result.stderr
 
 
-def test_measure_on_the_simulated_bench_reads_the_simulated_units_own_signal(run) -> None:
+def test_measure_on_the_simulated_bench_reads_the_simulated_units_own_signal(run, tmp_path: Path) -> None:
     from fixture.sim.dut import build_unit
 
-    result = run("measure", "--knob-a", "25", "--knob-b", "90", "--serial", "T-1", "--seed", "4", "--json")
+    result = run("measure", "--knob-a", "25", "--knob-b", "90", "--serial", "T-1", "--seed", "4", "--json",
+                 "--db", str(tmp_path / "r.sqlite"))
     assert result.exit_code == 0, result.stderr
     data = json.loads(result.stdout)
     truth = build_unit(load_design(DEMO), "T-1", seed=4).wave(25.0, 90.0)
     assert data["frequency_hz"] == pytest.approx(1 / truth.period_s, rel=1e-4)
     assert data["duty_pct"] == pytest.approx(100 * truth.duty, abs=0.1)
     assert data["simulated_unit"] == {"serial": "T-1", "seed": 4}
+
+
+def test_measure_refuses_a_station_another_process_holds_and_leaves_its_run_alone(run, tmp_path: Path) -> None:
+    # A spot reading powers the unit, moves the knobs and reconfigures the counter: on a station with a
+    # live run it would change that run's readings (README "One process per station"; common practice).
+    from fixture.runner.ownership import hold_station
+    from fixture.store import open_store
+
+    db = str(tmp_path / "r.sqlite")
+    with open_store(db) as store, hold_station(store, "PW-22 end-of-line bench 2"):
+        result = run("measure", "--db", db, "--json")
+        assert result.exit_code == 3, result.stderr
+        assert "station 'PW-22 end-of-line bench 2' is in use by process" in result.stderr
+        assert result.stdout == ""
+    assert run("measure", "--db", db, "--json").exit_code == 0  # released: free again
 
 
 def test_test_command_exit_codes_follow_the_verdict(run, tmp_path: Path) -> None:
