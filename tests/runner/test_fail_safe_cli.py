@@ -178,3 +178,40 @@ def test_sigterm_mid_run_ends_the_run_station_fault_switches_the_supply_off_and_
         assert run.summary.verdict == "station-fault"
         assert "pass" not in {s.verdict for s in run.steps[1:]}
         assert "SIGTERM" in run.steps[-1].message
+
+
+def test_ctrl_c_at_a_manual_knob_prompt_ends_the_run_aborted_with_exit_4(tmp_path):
+    # README "Verdicts": aborted = the operator pressed Ctrl-C; "Exit codes": 4. click turns Ctrl-C at a
+    # prompt into its Abort exception, which must not pass for a software fault (station-fault, exit 3).
+    import signal
+    import subprocess
+    import sys
+
+    text = (ROOT / "sequences/demo-station.toml").read_text(encoding="utf-8")
+    head, rest = text.split("[instruments.actuator]\n", 1)
+    station = tmp_path / "manual-station.toml"
+    station.write_text(head + '[instruments.actuator]\nkind = "manual"\n\n' + rest[rest.index("[instruments.actuator.knob_a]"):],
+                       encoding="utf-8")
+    db = tmp_path / "results.sqlite"
+    proc = subprocess.Popen([sys.executable, "-m", "fixture.cli", "test", "--station", str(station), "--serial",
+                             "PW22-000606", "--db", str(db), "--operator", "t", "--json"], cwd=ROOT,
+                            stdin=subprocess.PIPE, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+    try:
+        seen = ""
+        while "then confirm." not in seen:  # the first knob prompt: the power-up has passed
+            char = proc.stderr.read(1)
+            assert char, seen
+            seen += char
+        proc.send_signal(signal.SIGINT)
+        out, err = proc.communicate(timeout=120)
+    finally:
+        if proc.poll() is None:
+            proc.kill()
+            proc.communicate()
+    assert proc.returncode == 4, err
+    assert json.loads(out)["verdict"] == "aborted"
+    with open_store(str(db)) as store:
+        (summary,) = store.runs(limit=5)
+        run = store.run(summary.run_id)
+        assert run.summary.verdict == "aborted"
+        assert run.steps[-1].verdict == "aborted" and "software fault" not in run.steps[-1].message
