@@ -191,3 +191,20 @@ def test_test_command_refuses_a_malformed_lot(run, tmp_path: Path) -> None:
     result = run("test", "--serial", "PW22-000001", "--lot", "c_integrator", "--db", str(tmp_path / "r.sqlite"))
     assert result.exit_code == 2
     assert "--lot: expected PART=LOT" in result.stderr
+
+
+@pytest.mark.parametrize("command", [
+    ("limits", "--method", "monte-carlo", "--samples", "100"),
+    ("decode", "--samples", "3"),
+    ("measure",),
+    ("test", "--serial", "PW22-000001"),
+    ("demo", "--units", "1", "--no-reports"),
+])
+def test_a_negative_seed_is_bad_input_not_an_internal_error(run, command, tmp_path, monkeypatch) -> None:
+    # numpy's generators take only non-negative seeds (numpy.random.SeedSequence docs); a negative
+    # one must be refused as usage (exit 2) before anything is simulated, never reach numpy.
+    monkeypatch.chdir(tmp_path)
+    monkeypatch.setenv("KNOBLINE_DB", str(tmp_path / "r.sqlite"))
+    result = run(*command, "--seed", "-1")
+    assert result.exit_code == 2, result.output
+    assert "--seed" in result.stderr and "internal error" not in result.stderr
