@@ -208,3 +208,12 @@ def test_a_negative_seed_is_bad_input_not_an_internal_error(run, command, tmp_pa
     result = run(*command, "--seed", "-1")
     assert result.exit_code == 2, result.output
     assert "--seed" in result.stderr and "internal error" not in result.stderr
+
+
+def test_measure_refuses_a_serial_with_a_nul_or_control_character(run) -> None:
+    # U+0000 NUL and U+001B ESCAPE are C0 control characters (ECMA-48), never part of a serial; the
+    # simulated unit's serial is text like test's --serial and is refused (exit 2), not measured.
+    for serial in ("SIM\x00001", "SIM\x1b[2J"):
+        result = run("measure", "--serial", serial)
+        assert result.exit_code == 2, result.output
+        assert "--serial" in result.stderr
