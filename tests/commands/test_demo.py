@@ -79,3 +79,19 @@ def test_demo_out_that_is_a_file_or_an_over_long_name_is_bad_input(tmp_path: Pat
                                     catch_exceptions=False)
         assert result.exit_code == 2, result.output
         assert "--out" in result.stderr and "internal error" not in result.stderr
+
+
+def test_test_refuses_two_different_lots_for_one_part(tmp_path: Path) -> None:
+    # A unit is built from one lot of each part (the traveller's purpose; common practice, no source):
+    # two --lot options, or a --lot and the traveller, naming different lots of one part contradict
+    # each other and are refused (exit 2) before anything runs, not settled silently by order.
+    traveller = tmp_path / "travellers.csv"
+    traveller.write_text("serial,c_integrator\nPW22-000778,C1-2611A\n", encoding="utf-8")
+    db = tmp_path / "r.sqlite"
+    for extra in (["--lot", "c_integrator=C1-2611A", "--lot", "c_integrator=C1-2612B"],
+                  ["--traveller", str(traveller), "--lot", "c_integrator=C1-2612B"]):
+        result = CliRunner().invoke(main, ["test", "--serial", "PW22-000778", *extra, "--db", str(db),
+                                           "--operator", "t"], catch_exceptions=False)
+        assert result.exit_code == 2, result.output
+        assert "c_integrator" in result.stderr and "C1-2612B" in result.stderr
+    assert not db.exists()
