@@ -207,3 +207,29 @@ def test_test_command_refuses_a_malformed_lot(run, tmp_path: Path) -> None:
     result = run("test", "--serial", "PW22-000001", "--lot", "c_integrator", "--db", str(tmp_path / "r.sqlite"))
     assert result.exit_code == 2
     assert "--lot: expected PART=LOT" in result.stderr
+
+
+@pytest.mark.parametrize("command", [
+    ("limits", "--method", "monte-carlo", "--samples", "100"),
+    ("decode", "--samples", "3"),
+    ("measure",),
+    ("test", "--serial", "PW22-000001"),
+    ("demo", "--units", "1", "--no-reports"),
+])
+def test_a_negative_seed_is_bad_input_not_an_internal_error(run, command, tmp_path, monkeypatch) -> None:
+    # numpy's generators take only non-negative seeds (numpy.random.SeedSequence docs); a negative
+    # one must be refused as usage (exit 2) before anything is simulated, never reach numpy.
+    monkeypatch.chdir(tmp_path)
+    monkeypatch.setenv("KNOBLINE_DB", str(tmp_path / "r.sqlite"))
+    result = run(*command, "--seed", "-1")
+    assert result.exit_code == 2, result.output
+    assert "--seed" in result.stderr and "internal error" not in result.stderr
+
+
+def test_measure_refuses_a_serial_with_a_nul_or_control_character(run) -> None:
+    # U+0000 NUL and U+001B ESCAPE are C0 control characters (ECMA-48), never part of a serial; the
+    # simulated unit's serial is text like test's --serial and is refused (exit 2), not measured.
+    for serial in ("SIM\x00001", "SIM\x1b[2J"):
+        result = run("measure", "--serial", serial)
+        assert result.exit_code == 2, result.output
+        assert "--serial" in result.stderr

@@ -68,3 +68,30 @@ def test_batch_report_prints_hostile_lot_codes_and_operators_as_text(tmp_path: P
     html = (tmp_path / "batch-report.html").read_text(encoding="utf-8")
     assert hostile not in html
     assert "&lt;script&gt;alert(1)&lt;/script&gt;" in html
+
+
+def test_demo_out_that_is_a_file_or_an_over_long_name_is_bad_input(tmp_path: Path) -> None:
+    # mkdir of an existing file fails with EEXIST, of a 300-byte name with ENAMETOOLONG (Linux NAME_MAX
+    # is 255, limits.h): both are the user's --out mistake, exit 2 naming --out, never an internal error.
+    (tmp_path / "taken").write_text("not a folder\n")
+    for out in (tmp_path / "taken", tmp_path / ("a" * 300)):
+        result = CliRunner().invoke(main, ["demo", "--units", "1", "--no-reports", "--out", str(out)],
+                                    catch_exceptions=False)
+        assert result.exit_code == 2, result.output
+        assert "--out" in result.stderr and "internal error" not in result.stderr
+
+
+def test_test_refuses_two_different_lots_for_one_part(tmp_path: Path) -> None:
+    # A unit is built from one lot of each part (the traveller's purpose; common practice, no source):
+    # two --lot options, or a --lot and the traveller, naming different lots of one part contradict
+    # each other and are refused (exit 2) before anything runs, not settled silently by order.
+    traveller = tmp_path / "travellers.csv"
+    traveller.write_text("serial,c_integrator\nPW22-000778,C1-2611A\n", encoding="utf-8")
+    db = tmp_path / "r.sqlite"
+    for extra in (["--lot", "c_integrator=C1-2611A", "--lot", "c_integrator=C1-2612B"],
+                  ["--traveller", str(traveller), "--lot", "c_integrator=C1-2612B"]):
+        result = CliRunner().invoke(main, ["test", "--serial", "PW22-000778", *extra, "--db", str(db),
+                                           "--operator", "t"], catch_exceptions=False)
+        assert result.exit_code == 2, result.output
+        assert "c_integrator" in result.stderr and "C1-2612B" in result.stderr
+    assert not db.exists()

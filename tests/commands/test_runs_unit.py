@@ -200,3 +200,15 @@ def test_runs_and_unit_show_escape_sequences_nul_and_overrides_visibly(run, tmp_
     # JSON stays exact data (RFC 8259 escapes), and ASCII: no raw control byte on the terminal either.
     as_json = run("runs", "--db", url, "--json").stdout
     assert as_json.isascii() and json.loads(as_json)["runs"][0]["serial"] == hostile.SERIAL
+
+
+@pytest.mark.parametrize("db", ["://", "a/" * 3000 + "x.sqlite", "dir"])
+def test_runs_names_a_database_path_or_url_it_cannot_use_as_bad_input(db: str, tmp_path, monkeypatch) -> None:
+    # Linux refuses a path over PATH_MAX (4096 bytes, limits.h) with ENAMETOOLONG; SQLite cannot
+    # use a directory as its file. Both are the user's mistake: exit 2, one line, no internal error.
+    monkeypatch.chdir(tmp_path)
+    (tmp_path / "dir").mkdir()
+    result = CliRunner().invoke(main, ["runs", "--db", db], catch_exceptions=False)
+    assert result.exit_code == 2, result.output
+    last = result.stderr.strip().splitlines()[-1]
+    assert last.startswith("knobline: error: database") and "internal error" not in result.stderr

@@ -71,3 +71,16 @@ def test_self_check_on_a_station_without_the_section_is_bad_input(tmp_path: Path
                  str(tmp_path / "r.sqlite"))
     assert result.exit_code == 2
     assert "has no [self_check] section" in result.stderr
+
+
+def test_station_self_check_refuses_an_operator_with_control_or_bidi_characters(tmp_path: Path) -> None:
+    # U+202E RIGHT-TO-LEFT OVERRIDE and U+001B ESCAPE (Unicode Standard Annex #9; ECMA-48): an operator
+    # name is stored and shown later, so it must be printable text like `knobline test`'s --operator,
+    # refused (exit 2) before anything is opened or recorded.
+    db = tmp_path / "r.sqlite"
+    for operator in ("\u202eevil", "lead\x1b[2J"):
+        result = run("station", str(station_copy(tmp_path, False)), "--self-check", "--db", str(db),
+                     "--operator", operator)
+        assert result.exit_code == 2, result.output
+        assert "--operator" in result.stderr
+    assert not db.exists()

@@ -148,3 +148,20 @@ def test_an_acceptance_window_widened_into_the_stuck_margin_is_refused() -> None
     assert "stuck high" in wide.refusal
     narrow = measure_row(design, row, replace(setup, rule=DecisionRule("guarded-rejection", 1.0)))
     assert narrow.refusal == ""
+
+
+def test_a_spec_that_no_unit_of_the_design_can_meet_is_a_problem_naming_the_file_and_stop(tmp_path: Path) -> None:
+    # The tolerance limits are the design's band narrowed to the spec (README, [[spec]]): a duty spec of
+    # at most 0.2 % at knob B 0 %, where the worst-case band starts near 1.9 %, leaves no window at all,
+    # so every unit would fail. check and limits must say so on one line naming the file and stop,
+    # never "ok", and never a bare "tolerance limits" line with no file (common practice, no source).
+    path = edited_copy(DEMO, tmp_path, "at = 0\nhigh = 20", "at = 0\nhigh = 0.2")
+    sequence = tmp_path / "demo-sequence.toml"  # names demo-panel.toml beside it: the edited design
+    sequence.write_text(Path("sequences/demo-sequence.toml").read_text(encoding="utf-8"), encoding="utf-8")
+    for args in (("check", str(path)), ("limits", str(path), "--samples", "200"),
+                 ("check", str(path), "--sequence", str(sequence), "--station", "demo-station")):
+        result = invoke(*args)
+        assert result.exit_code == 2, (args, result.output)
+        errors = [ln for ln in result.stderr.splitlines() if "error:" in ln]
+        assert errors and all(str(path) in ln or "demo-sequence" in ln for ln in errors), errors
+        assert any("knobs.b.stops (0 %)" in ln and "specification" in ln for ln in errors), errors

@@ -114,3 +114,21 @@ def test_digits_that_are_both_a_serial_and_a_run_id_must_be_spelled_out(run, db_
     assert result.exit_code == 2 and "write run:1 or serial:1" in result.stderr
     assert certify(run, db_url, key, tmp_path, "serial:1")["run_id"] == run_id
     assert certify(run, db_url, key, tmp_path, "run:1")["serial"] == "PW22-000001"
+
+
+@pytest.mark.parametrize("depth", [900, 100_000])
+def test_verify_reports_a_record_nested_too_deep_as_a_mismatch_not_an_internal_error(run, db_url, key, tmp_path,
+                                                                                   depth):
+    # Python's json module recurses per nesting level and raises RecursionError past the interpreter's
+    # limit (Python docs, json: "Changed in 3.x ... RecursionError", from memory). A hostile file is
+    # the file's problem: DOES NOT VERIFY (exit 1) or bad input (exit 2), never exit 3.
+    made = certify(run, db_url, key, tmp_path, "PW22-000001")
+    html = Path(made["html"]).read_text(encoding="utf-8")
+    # a valid JSON record whose first value is nested ``depth`` arrays deep
+    hostile = html.replace('{"certificate_number":', '{"certificate_number":' + "[" * depth + "]" * depth + ',"x":', 1)
+    assert hostile != html
+    page = tmp_path / "deep.html"
+    page.write_text(hostile, encoding="utf-8")
+    result = run("verify", str(page), "--db", db_url, "--key", str(key.path))
+    assert result.exit_code in (1, 2), result.output
+    assert "internal error" not in result.stderr

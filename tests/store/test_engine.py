@@ -56,3 +56,45 @@ def test_the_folder_of_a_new_sqlite_file_is_created(tmp_path: Path) -> None:
         assert (tmp_path / "a" / "b" / "r.sqlite").exists()
     finally:
         engine.dispose()
+
+
+def _fifo(tmp_path: Path) -> Path:
+    import os
+    path = tmp_path / "pipe.sqlite"
+    os.mkfifo(path)
+    return path
+
+
+@pytest.mark.parametrize(("make", "found"), [
+    (lambda tmp: tmp, "a directory"),
+    (_fifo, "a FIFO"),
+    (lambda tmp: Path("/dev/zero"), "a device"),
+    (lambda tmp: (tmp / "notes.sqlite", (tmp / "notes.sqlite").write_text("shopping list\n"))[0], "not a SQLite"),
+    (lambda tmp: tmp / ("a" * 300 + ".sqlite"), "too long"),
+])
+def test_a_database_path_that_is_not_a_sqlite_file_is_bad_input(tmp_path: Path, make, found: str) -> None:
+    # SQLite opens only regular files (sqlite.org "file is not a database", from memory); a directory,
+    # FIFO or device given as --db must be the user's mistake (exit 2), named, never a hang or an
+    # internal error. Linux limits one path component to 255 bytes (NAME_MAX, limits.h).
+    from fixture.errors import UserInputError
+    from fixture.store import open_store
+    path = make(tmp_path)
+    with pytest.raises(UserInputError, match=found) as caught:
+        open_store(str(path)).close()
+    assert "\n" not in str(caught.value)
+
+
+@pytest.mark.parametrize("url", ["bogus://x", "postgresql+nodriver://line@db/results"])
+def test_a_database_url_of_an_unknown_kind_is_bad_input(url: str) -> None:
+    # SQLAlchemy raises NoSuchModuleError for a dialect or driver it cannot load (SQLAlchemy docs, engines).
+    from fixture.errors import UserInputError
+    from fixture.store import open_store
+    with pytest.raises(UserInputError, match="database"):
+        open_store(url).close()
+
+
+def test_a_database_url_that_cannot_be_parsed_is_bad_input() -> None:
+    # "://" has no dialect name: SQLAlchemy's make_url raises ArgumentError (SQLAlchemy docs, engines).
+    from fixture.errors import UserInputError
+    with pytest.raises(UserInputError, match="database ://: expected a SQLAlchemy URL"):
+        resolve_url("://")
