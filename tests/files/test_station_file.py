@@ -102,3 +102,18 @@ def test_a_manual_actuator_needs_no_resource(tmp_path: Path) -> None:
     path.write_text(text, encoding="utf-8")
     entry = load_station(path).instruments["actuator"]
     assert entry.backend == "manual" and entry.resource == ""
+
+
+@pytest.mark.parametrize("value", ["-5", "1e30", "nan"])
+def test_a_nonsense_record_length_is_refused_on_a_counter_station_too(tmp_path: Path, value: str) -> None:
+    # A record is a whole number of samples, at least 2 (common practice, no source). The key is the
+    # scope's, but a counter station that writes it with a nonsense value must be told, not ignored:
+    # the day the bench switches to its scope, the value would suddenly count.
+    line = only_problem(variant(tmp_path, "target_tur = 4", f"target_tur = 4\nrecord_length = {value}"))
+    assert "measurement.record_length" in line and "whole number of samples" in line
+
+
+def test_a_calibration_due_with_a_time_is_named_as_a_date_and_time_not_a_python_repr(tmp_path: Path) -> None:
+    # TOML 1.0 "Local Date-Time" (toml.io): 2027-04-30T10:00:00 is a date and a time, not a date.
+    line = only_problem(variant(tmp_path, "due = 2027-04-30\nlab", "due = 2027-04-30T10:00:00\nlab"))
+    assert "calibration.due" in line and "2027-04-30 10:00:00" in line and "datetime" not in line
