@@ -189,3 +189,22 @@ def test_render_template_errors_for_an_unknown_name_say_where(tmp_path) -> None:
     folder = company_folder(tmp_path, "a\nb {{ nothing_here }}", name="t.j2")
     with pytest.raises(UserInputError, match=r"t\.j2 line 2: 'nothing_here' is undefined"):
         render_template(make_environment([folder]), "t.j2", {})
+
+
+# Denial of service through a template: jinja2's sandbox bounds `range` (jinja2.sandbox.MAX_RANGE)
+# but not repetition or format widths; our bounds are ours (common practice, no source).
+@pytest.mark.parametrize("body", ["{{ 'a' * 1000000000 }}", "{{ [1] * 1000000000 }}", "{{ '%999999999d' % 1 }}",
+                                  "{{ '%999999999d' | format(1) }}", "{{ 7 ** 100000000 }}"],
+                         ids=["text-repeat", "list-repeat", "percent-width", "format-filter-width", "power"])
+def test_a_template_that_would_build_a_huge_value_is_refused_naming_file_and_line(db_url, key, tmp_path,
+                                                                                   body) -> None:
+    message = refusal(db_url, key, tmp_path, body)
+    assert "certificate.html.j2 line 1: the template is too costly to render" in message, message
+
+
+def test_a_template_that_runs_past_its_time_is_stopped_with_one_line(db_url, key, tmp_path, monkeypatch) -> None:
+    monkeypatch.setattr("fixture.reporting.templating.RENDER_LIMIT_S", 0.5)
+    message = refusal(db_url, key, tmp_path, "{% for i in range(99999) %}{% for j in range(99999) %}"
+                                             "{% endfor %}{% endfor %}")
+    assert "certificate.html.j2 line 1: the template is too costly to render (rendering took longer than 0.5 s)" \
+        in message, message
