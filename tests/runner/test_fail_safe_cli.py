@@ -215,3 +215,23 @@ def test_ctrl_c_at_a_manual_knob_prompt_ends_the_run_aborted_with_exit_4(tmp_pat
         run = store.run(summary.run_id)
         assert run.summary.verdict == "aborted"
         assert run.steps[-1].verdict == "aborted" and "software fault" not in run.steps[-1].message
+
+
+@pytest.mark.parametrize("command", [["measure", "--knob-a", "50", "--knob-b", "50"], ["station", "--self-check"]],
+                         ids=["measure", "self-check"])
+def test_sigterm_while_the_unit_is_powered_switches_the_supply_off_and_exits_3(tmp_path, command):
+    # Same rule as a run's (README "Exit codes": 3 for a station stopped early): a supervisor's SIGTERM
+    # while the supply is on must not leave the unit powered.
+    import subprocess
+    import sys
+
+    code = ("import os, signal, sys; import fixture.instruments.supply as s; real = s.Supply.output\n"
+            "def output(self, on):\n    real(self, on); print('supply output', on, file=sys.stderr, flush=True)\n"
+            "    if on: os.kill(os.getpid(), signal.SIGTERM)\n"
+            "s.Supply.output = output\n"
+            "from fixture.cli import main; main()")
+    result = subprocess.run([sys.executable, "-c", code, *command, "--db", str(tmp_path / "r.sqlite")],
+                            capture_output=True, text=True, timeout=120, cwd=ROOT)
+    assert result.returncode == 3, result.stderr
+    assert "stopped by SIGTERM" in result.stderr
+    assert result.stderr.index("supply output True") < result.stderr.rindex("supply output False")
