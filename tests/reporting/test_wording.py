@@ -15,6 +15,7 @@ from fixture.files.design_file import load_design
 from fixture.model.quantities import QUANTITIES
 from fixture.reporting.certificate import build_record
 from fixture.reporting.certificate_view import certificate_view
+from fixture.reporting.formatting import NO_LIMITS
 from fixture.reporting.part_labels import design_part_labels, labels_from_design
 from fixture.reporting.wording import quantity_label, time_words
 from fixture.store import open_store
@@ -106,5 +107,5 @@ def test_the_terminal_prints_each_reading_as_the_certificate_does(demo: Path) ->
                     assert f": {row.reading}" in line, (line, row)
                     if row.uncertainty != "-":
                         assert f"U = {row.uncertainty} (k = 2)" in line
-                    if row.acceptance != "none":
+                    if row.acceptance != NO_LIMITS:
                         assert f"acceptance {row.acceptance}" in line
