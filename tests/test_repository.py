@@ -44,8 +44,9 @@ ALLOWED = {
     "analytics": {"fixture.analytics", "fixture.store", "fixture.model", "fixture.errors"},
     "model": {"fixture.model", "fixture.errors"},
     "files": {"fixture.files", "fixture.model", "fixture.errors"},
-    "reporting": {"fixture.reporting", "fixture.analytics", "fixture.runner", "fixture.store", "fixture.model",
-                  "fixture.errors"},
+    # files/ for the design file stored with a run, read again to name its parts on certificates
+    "reporting": {"fixture.reporting", "fixture.analytics", "fixture.runner", "fixture.store", "fixture.files",
+                  "fixture.model", "fixture.errors"},
     "instruments": {"fixture.instruments", "fixture.files", "fixture.model", "fixture.errors"},
     "sim": {"fixture.sim", "fixture.instruments", "fixture.files", "fixture.model", "fixture.errors"},
     "store": {"fixture.store", "fixture.model", "fixture.errors"},

@@ -24,6 +24,7 @@ from fixture.errors import UserInputError
 from fixture.files.design_file import load_design
 from fixture.sim.batch import plan_batch
 from fixture.sim.dut import Defect, SimulatedUnit, build_unit
+from fixture.model.circuits.part_roles import part_name
 
 ROOT = Path(__file__).resolve().parents[2]
 U = ReadingUncertainty(frequency_rel=1e-4, duty_pp=0.05)
@@ -163,7 +164,10 @@ def test_shifted_lot_is_found_and_reads_its_shift_within_two_standard_errors(des
     assert (strongest.part, strongest.lot) == (part, lot), strongest.finding
     mean, se = strongest.shift_pct
     assert abs(mean - 100.0 * shift) <= 2.0 * se, strongest.finding
-    assert f"lot {lot} of {part} reads about {mean:+.1f} % on average (+-{se:.1f} %" in strongest.finding
+    # the part in words (designator and role), never its key
+    name = part_name(part, design.part(part).ref)
+    assert f"lot {lot} of {name} reads about {mean:+.1f} % on average (+-{se:.1f} %" in strongest.finding
+    assert part not in strongest.finding
     # the other lots of the same part read no shift beyond 3 standard errors
     for f in findings:
         if f.part == part and f.lot != lot:

@@ -154,13 +154,15 @@ def test_unit_text_shows_each_step_and_reading(run, db_url: str) -> None:
     result = run("unit", "PW22-000001", "--db", db_url)
     assert result.exit_code == 0, result.stderr
     text = result.stdout
-    assert "c_integrator" in text and "C1-2611A" in text
-    assert "step 1 duty at stops: FAIL: duty high at B 90 %" in text
+    # parts in words (no design text stored here: the circuit's role words), never the key
+    assert "Integrator capacitor" in text and "C1-2611A" in text and "c_integrator" not in text
+    assert "step 2 duty at stops: FAIL: 1 reading outside its acceptance limits." in text  # steps from 1
     # Duty is recorded as a fraction; people read percent: 0.9312 -> 93.12 %.
-    duty_line = next(ln for ln in text.splitlines() if "duty at B 90 %:" in ln)
+    duty_line = next(ln for ln in text.splitlines() if "Duty cycle at knob A 50 %, B 90 %:" in ln)
     assert duty_line.split()[0] == "FAIL" and "93.12 %" in duty_line and "91.9 %" in duty_line
-    period_line = next(ln for ln in text.splitlines() if "period at A 25 %:" in ln)
-    assert "3.12346 ms" in period_line and "(k = 2)" in period_line
+    # U = 2.0 µs: the period to U's last place, 0.1 µs (JCGM 100 7.2.6)
+    period_line = next(ln for ln in text.splitlines() if "Period at knob A 25 %, B 50 %:" in ln)
+    assert "3.1235 ms, U = 2.0 µs (k = 2)" in period_line
 
 
 def test_unknown_serial_exits_2_with_one_line(run, db_url: str) -> None:

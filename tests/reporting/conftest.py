@@ -15,6 +15,8 @@ DESIGN_SHA = hashlib.sha256(b"a design file").hexdigest()
 SEQUENCE_SHA = hashlib.sha256(b"a sequence file").hexdigest()
 T0 = dt.datetime(2026, 3, 2, 8, 0, tzinfo=dt.UTC)
 HOSTILE = "<script>alert(1)</script>"
+#: the stored design's text: only what names the parts (invented)
+DESIGN_TEXT = '[parts.c_integrator]\nref = "C1"\ndescription = "film"\n'
 
 # Invented readings (demo-like data, never a reference value).
 PERIOD = MeasurementRecord("period at A 25 %", "period", 3.1234567e-3, "s", "pass", knob_a_pct=25.0,
@@ -50,7 +52,7 @@ def db_url(tmp_path: Path) -> str:
     """
     url = f"sqlite:///{tmp_path / 'results.sqlite'}"
     with open_store(url) as store:
-        store.record_design("PW-22", "C", "demo-panel.toml", DESIGN_SHA)
+        store.record_design("PW-22", "C", "demo-panel.toml", DESIGN_SHA, DESIGN_TEXT)
         store.record_sequence("final test", "demo-sequence.toml", SEQUENCE_SHA)
         store.record_station("line-1", "hall 2", hashlib.sha256(b"a station").hexdigest(), "demo-station.toml")
         counter = store.record_instrument("counter", "Tessaly Instruments", "FC-3120", "T31-0042", "1.04",

@@ -40,8 +40,10 @@ def mismatches(result) -> list[tuple[str, str]]:
 def test_record_states_everything_clause_7_8_asks_for(db_url: str) -> None:
     with open_store(db_url) as store:
         record = build_record(store, 1)
+    # lots name each part by the stored design's designator and the circuit's role words (record format 2)
     assert record["unit"] == {"serial": "PW22-000001", "product": "PW-22", "revision": "C",
-                              "lots": {"c_integrator": "C1-2611A"}}
+                              "lots": [{"part": "c_integrator", "designator": "C1",
+                                        "label": "C1 integrator capacitor (film)", "lot": "C1-2611A"}]}
     run = record["run"]
     assert (run["station"], run["operator"], run["software_version"], run["verdict"]) == \
         ("line-1", "ana", "0.1.0", "fail")
@@ -74,9 +76,11 @@ def test_html_states_verdict_serial_instruments_limits_rule_and_safety_caution(d
     files = write(db_url, 1, tmp_path / "out", key)
     html = files.html.read_text(encoding="utf-8")
     assert files.html.name == f"{files.number}.html"
+    # 3.1234567 ms with U = 2.0 µs prints to U's last place, 0.1 µs (JCGM 100 7.2.6); duty 0.9312 with
+    # U = 0.0010 (0.10 %) prints 93.12 %.
     for expected in ("FAIL", "PW22-000001", "PW-22", "FC-3120", "T31-0042", "CAL-26-0117", "2027-01-31",
                      "guarded acceptance, w = 1 x U", SAFETY_CAUTION, files.seal.record_sha256,
-                     files.seal.signature, files.seal.fingerprint, "3.12346 ms", "93.12 %", "(k = 2)"):
+                     files.seal.signature, files.seal.fingerprint, "3.1235 ms", "93.12 %", "(k = 2)"):
         assert expected in html, expected
     assert "<svg" in html  # the QR code, inline
 
@@ -98,7 +102,7 @@ def test_hostile_serial_lot_and_operator_print_as_text(db_url, key, tmp_path) ->
     assert html.count("</script>") == 2
     embedded = read_certificate(html)
     assert embedded.record["unit"]["serial"] == HOSTILE
-    assert embedded.record["unit"]["lots"] == {"c_integrator": HOSTILE}
+    assert [entry["lot"] for entry in embedded.record["unit"]["lots"]] == [HOSTILE]
     assert embedded.record["run"]["operator"] == HOSTILE
 
 
@@ -210,5 +214,5 @@ def test_readings_print_with_si_prefixes_but_percent_never_gets_one() -> None:
     assert format_reading(2e-3, "A") == "2 mA"
     assert format_reading(0.00245583, "%") == "0.00245583 %"  # not "2.45583 m%"
     assert format_reading(0.9312, "1", "duty") == "93.12 %"
-    assert format_limits(None, 0.919, "1", "duty") == "<= 91.9 %"
+    assert format_limits(None, 0.919, "1", "duty") == "≤ 91.9 %"
     assert format_limits(None, None, "s") == "none"
