@@ -176,7 +176,7 @@ def test_a_run_stores_the_judged_rows_and_the_certificate_prints_value_and_limit
     limits = format_limits(duty["acceptance_low"], duty["acceptance_high"], duty["unit"], duty["quantity"])
     # The plan's limit for the duty shift, printed without an SI prefix (a "2 pp" limit, never "2000 mpp").
     limit = check_of(step_of(bench.plan, StepKind.CROSS_TALK), CheckKind.DUTY_SHIFT_PP).high
-    assert duty["verdict"] == "pass" and limits == f"<= {limit:g} pp"
+    assert duty["verdict"] == "pass" and limits == f"≤ {limit:g} pp"
 
 
 def test_judged_rows_leave_the_readings_lot_and_spc_statistics_load_unchanged(bench) -> None:
