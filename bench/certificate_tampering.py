@@ -20,13 +20,17 @@ import glob
 import json
 import re
 import shutil
+import sys
 import tempfile
 from collections.abc import Callable
 from pathlib import Path
 
 from click.testing import CliRunner
 
-from fixture.cli import main as cli
+# Measure this checkout, not whatever knobline happens to be installed.
+sys.path.insert(0, str(Path(__file__).resolve().parent.parent))
+
+from fixture.cli import main as cli  # noqa: E402
 
 _DATA = '<script type="application/json"'
 
@@ -84,6 +88,22 @@ def _edit_seal_signature(html: str) -> str:
     raise LookupError("no seal")
 
 
+def _edit_seal_hash(html: str) -> str:
+    for m in _json_blocks(html):
+        data = json.loads(m.group(2))
+        if isinstance(data, dict) and "record_sha256" in data:
+            digest = data["record_sha256"]
+            data["record_sha256"] = ("0" if digest[0] != "0" else "1") + digest[1:]
+            return html[:m.start(2)] + json.dumps(data) + html[m.end(2):]
+    raise LookupError("no seal")
+
+
+def _second_record_in_template(html: str) -> str:
+    # A second copy of the record, inert in a <template> a browser never shows.
+    record = next(m.group(0) for m in _json_blocks(html) if "record" in m.group(1))
+    return html.replace("</body>", f"<template>{record}</template>\n</body>", 1)
+
+
 def _edit_record(html: str) -> str:
     for m in _json_blocks(html):
         data = json.loads(m.group(2))
@@ -131,6 +151,7 @@ def main() -> None:
         lot_code = next(iter(record["unit"]["lots"].values())) if isinstance(record["unit"]["lots"], dict) \
             else record["unit"]["lots"][0]["lot"]
         inst = record["instruments"][0]
+        due = next((i["calibration_due"] for i in record["instruments"] if i["calibration_due"]), "none")
         cases: list[tuple[str, str, Callable[[], str], bool]] = [
             ("visible verdict FAIL -> PASS", fail or good, lambda: _replace_text(texts[fail], "FAIL", "PASS")
              if fail else _replace_text(genuine, "PASS", "FAIL"), True),
@@ -142,6 +163,8 @@ def main() -> None:
             ("station", good, lambda: _replace_text(genuine, record["run"]["station"], "Bench 9"), True),
             ("operator", good, lambda: _replace_text(genuine, record["run"]["operator"], "someone"), True),
             ("instrument serial", good, lambda: _replace_text(genuine, inst["serial"], inst["serial"] + "7"), True),
+            ("calibration due date", good, lambda: _replace_text(genuine, due, due[:3] + str((int(due[3]) + 1) % 10)),
+             True),
             ("a limit or U (a number in ms)", good, lambda: _nth_number_text(genuine, "ms", 1), True),
             ("a duty reading or limit (%)", good, lambda: _nth_number_text(genuine, "%", 3), True),
             ("decision rule text", good, lambda: _replace_text(genuine, "ILAC", "ILAK"), True),
@@ -153,6 +176,8 @@ def main() -> None:
             ("genuine record kept in a comment", good, lambda: _genuine_in_comment(genuine, texts[other]), True),
             ("record edited", good, lambda: _edit_record(genuine), True),
             ("signature edited", good, lambda: _edit_seal_signature(genuine), True),
+            ("sealed record hash edited", good, lambda: _edit_seal_hash(genuine), True),
+            ("a second record in a <template>", good, lambda: _second_record_in_template(genuine), True),
         ]
         key_files = [p for p in glob.glob(str(out / "keys" / "*.pem")) if ".pub." not in p and ".crt." not in p]
         key_opt = ["--key", key_files[0]] if key_files else []
@@ -190,9 +215,19 @@ def main() -> None:
         total += 1
         caught["--db"] += code == 1
         print(f"{'verify 2 --dir D on a file holding run 1':<44} {'caught' if code == 1 else f'MISSED({code})':>8}")
+        # The untouched file checked against another key: must fail, in one line.
+        from fixture.reporting.signing import station_key  # noqa: PLC0415 (after the path is set)
+
+        rogue = station_key(Path(tmp) / "rogue" / "station-key.pem", create_missing=True)
+        wrong = runner.invoke(cli, ["verify", good, "--db", db, "--key", str(rogue.path)])
+        total += 1
+        caught["--db"] += wrong.exit_code == 1
+        lines = [ln for ln in wrong.output.splitlines() if ln.startswith("  mismatch")]
+        print(f"{'checked against the wrong key':<44} {'caught' if wrong.exit_code == 1 else 'MISSED':>8}  "
+              f"({len(lines)} line: {lines[0].strip() if lines else ''})")
         untouched = runner.invoke(cli, ["verify", good, "--db", db, *key_opt]).exit_code
         print(f"untouched certificate verifies: {'yes' if untouched == 0 else f'NO (exit {untouched})'}")
-        print(f"caught with --db: {caught['--db']} of {total}; with --no-db: {caught['--no-db']} of {total - 1}")
+        print(f"caught with --db: {caught['--db']} of {total}; with --no-db: {caught['--no-db']} of {total - 2}")
 
 
 if __name__ == "__main__":

@@ -3,7 +3,10 @@
 from __future__ import annotations
 
 import json
+import shlex
 from pathlib import Path
+
+import pytest
 
 from click.testing import CliRunner
 
@@ -40,19 +43,23 @@ def test_test_command_takes_lots_from_a_traveller(tmp_path: Path) -> None:
         assert store.unit("PW22-000777").lots == {"c_integrator": "C1-2611A", "knob_a_pot": "RV1-2609B"}
 
 
-def test_demo_ends_with_a_batch_report_and_a_verifiable_certificate_per_unit(tmp_path: Path) -> None:
-    result = CliRunner().invoke(main, ["demo", "--units", "8", "--seed", "3", "--out", str(tmp_path), "--json"],
+def test_demo_ends_with_a_batch_report_and_the_verify_command_that_works_from_here(
+        tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    monkeypatch.chdir(tmp_path)  # where the user typed the command; --out is relative, as they would write it
+    monkeypatch.setenv("XDG_DATA_HOME", str(tmp_path / "empty"))  # no station key of this machine to fall back on
+    monkeypatch.delenv("KNOBLINE_KEY", raising=False)
+    result = CliRunner().invoke(main, ["demo", "--units", "8", "--seed", "3", "--out", "knobline-demo"],
                                 catch_exceptions=False)
     assert result.exit_code == 0, result.stderr
-    data = json.loads(result.stdout)
-    report = Path(data["batch_report"]).read_text(encoding="utf-8")
-    assert "First-pass yield" in report and "<svg" in report
-    certificates = sorted(Path(data["certificates"]).glob("*.html"))
-    assert len(certificates) == data["certificate_count"] == 8
-    verify = CliRunner().invoke(main, ["verify", str(certificates[0]), "--db", str(tmp_path / "results.sqlite"),
-                                       "--key", str(tmp_path / "keys" / "station-ed25519.pem")],
-                                catch_exceptions=False)
+    lines = result.stdout.splitlines()
+    report = Path(next(ln for ln in lines if ln.startswith("batch report: ")).split(": ", 1)[1])
+    assert "First-pass yield" in report.read_text(encoding="utf-8")
+    assert len(sorted(Path("knobline-demo/certificates").glob("*.html"))) == 8
+    command = lines[-1].removeprefix("check a certificate: ")
+    assert command != lines[-1] and command.startswith("knobline verify knobline-demo/certificates/KL-")
+    verify = CliRunner().invoke(main, shlex.split(command)[1:], catch_exceptions=False)
     assert verify.exit_code == 0, verify.stdout + verify.stderr
+    assert verify.stdout.startswith("VERIFIED: ")
 
 
 def test_batch_report_prints_hostile_lot_codes_and_operators_as_text(tmp_path: Path) -> None:

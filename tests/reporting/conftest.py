@@ -41,7 +41,7 @@ def private_paths(monkeypatch: pytest.MonkeyPatch, tmp_path: Path) -> None:
 
 @pytest.fixture
 def key(tmp_path: Path) -> StationKey:
-    return station_key(tmp_path / "keys" / "station-ed25519.pem", create_missing=True)
+    return station_key(tmp_path / "keys" / "station-key.pem", create_missing=True)
 
 
 @pytest.fixture

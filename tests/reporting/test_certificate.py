@@ -57,14 +57,38 @@ def test_record_states_everything_clause_7_8_asks_for(db_url: str) -> None:
     assert duty["decision_rule"] == "guarded acceptance, w = 1 x U"
 
 
+DB_A, DB_B = "0" * 32, "f" * 32  # two database identities (the store makes random ones; any 32 hex will do)
+
+
 def test_certificate_number_is_deterministic_file_safe_and_differs_by_station_and_run() -> None:
-    number = certificate_number("line-1", 42)
-    assert number == certificate_number("line-1", 42)
-    assert re.fullmatch(r"KL-LINE-1-000042-[0-9A-F]{4}", number)
-    assert number != certificate_number("line-1", 43)
-    assert certificate_number("line 1", 42) != certificate_number("LINE-1", 42)  # same slug, other station
+    number = certificate_number("line-1", 42, DB_A)
+    assert number == certificate_number("line-1", 42, DB_A)
+    # 6 characters of Crockford's base32 alphabet (crockford.com/base32.html: no I, L, O, U)
+    assert re.fullmatch(r"KL-LINE-1-000042-[0-9A-HJKMNP-TV-Z]{6}", number)
+    assert number != certificate_number("line-1", 43, DB_A)
+    assert certificate_number("line 1", 42, DB_A) != certificate_number("LINE-1", 42, DB_A)  # same slug
     # Letters and digits only, station part cut at 20 characters: safe as a file name.
-    assert re.fullmatch(r"KL-SCRIPT-ALERT-1-SCRIP-000001-[0-9A-F]{4}", certificate_number(HOSTILE, 1))
+    assert re.fullmatch(r"KL-SCRIPT-ALERT-1-SCRIP-000001-[0-9A-HJKMNP-TV-Z]{6}", certificate_number(HOSTILE, 1, DB_A))
+
+
+def test_two_databases_give_different_numbers_for_the_same_station_and_run(db_url, tmp_path) -> None:
+    assert certificate_number("line-1", 1, DB_A) != certificate_number("line-1", 1, DB_B)
+    other_url = f"sqlite:///{tmp_path / 'other.sqlite'}"
+    with open_store(db_url) as first, open_store(other_url) as second:
+        assert re.fullmatch(r"[0-9a-f]{32}", first.database_id) and first.database_id != second.database_id
+        assert certificate_number("line-1", 1, first.database_id) != \
+            certificate_number("line-1", 1, second.database_id)
+        assert build_record(first, 1)["run"]["database_id"] == first.database_id
+    with open_store(db_url) as again:  # made once: reopening keeps the identity
+        assert again.database_id == first.database_id
+
+
+def test_crockford_base32_reads_bits_five_at_a_time() -> None:
+    from fixture.reporting.certificate import crockford_base32
+
+    # crockford.com/base32.html: symbols 0-9 A-H J K M N P-T V-Z for values 0..31 (from memory of the table).
+    assert crockford_base32(bytes([0b00001_000, 0b10_00000_0]), 3) == "120"
+    assert crockford_base32(b"\xff\xff", 3) == "ZZZ"
 
 
 def test_only_runs_with_a_verdict_on_the_unit_get_a_certificate(db_url: str) -> None:
@@ -80,14 +104,14 @@ def test_html_states_verdict_serial_instruments_limits_rule_and_safety_caution(d
     # U = 0.0010 (0.10 %) prints 93.12 %.
     for expected in ("FAIL", "PW22-000001", "PW-22", "FC-3120", "T31-0042", "CAL-26-0117", "2027-01-31",
                      "guarded acceptance, w = 1 x U", SAFETY_CAUTION, files.seal.record_sha256,
-                     files.seal.signature, files.seal.fingerprint, "3.1235 ms", "93.12 %", "(k = 2)"):
+                     files.seal.fingerprint, f"station-key-{files.seal.fingerprint[:16]}.crt.pem beside this file", "3.1235 ms", "93.12 %", "(k = 2)"):
         assert expected in html, expected
     assert "<svg" in html  # the QR code, inline
 
 
 def test_rendering_twice_gives_identical_files(db_url, key, tmp_path) -> None:
     first = write(db_url, 1, tmp_path / "a", key).html.read_bytes()
-    assert write(db_url, 1, tmp_path / "b", key).html.read_bytes() == first  # Ed25519 is deterministic
+    assert write(db_url, 1, tmp_path / "b", key).html.read_bytes() == first  # RFC 6979 ECDSA is deterministic
 
 
 def test_hostile_serial_lot_and_operator_print_as_text(db_url, key, tmp_path) -> None:
@@ -148,7 +172,9 @@ def test_an_untouched_certificate_verifies_against_key_and_database(db_url, key,
     files = write(db_url, 1, tmp_path, key)
     result = verify(db_url, files.html, key)
     assert result.verified and mismatches(result) == []
-    assert [f.check for f in result.findings] == ["hash", "key", "signature", "database"]
+    assert [f.check for f in result.findings] == ["key", "signature", "hash", "number", "document", "visible",
+                                                  "database"]
+    assert all(f.status == "ok" for f in result.findings)
 
 
 def test_a_measurement_changed_in_the_database_is_named(db_url, key, tmp_path) -> None:
@@ -169,9 +195,10 @@ def test_one_byte_changed_in_the_embedded_record_breaks_the_hash(db_url, key, tm
     files.html.write_text(edited, encoding="utf-8")
     result = verify(db_url, files.html, key)
     found = mismatches(result)
-    assert [check for check, _ in found] == ["hash", "database"]
+    assert [check for check, _ in found] == ["hash", "document", "visible", "database"]
     assert "the record was edited after signing" in found[0][1]
-    assert "certificate 0.9112, database 0.9312" in found[1][1]
+    assert "visible text differs from the signed record" in found[2][1]
+    assert "certificate 0.9112, database 0.9312" in found[3][1]
     assert verify(None, files.html, key).verified is False  # caught without the database too
 
 
@@ -193,7 +220,7 @@ def test_a_changed_signature_is_invalid(db_url, key, tmp_path) -> None:
     files.html.write_text(html.replace(seal_element.group(1), seal_element.group(1).replace(sig, other)),
                           encoding="utf-8")
     result = verify(db_url, files.html, key)
-    assert [check for check, _ in mismatches(result)] == ["signature"]
+    assert [check for check, _ in mismatches(result)] == ["signature"]  # the seal element is outside the document hash
 
 
 def test_a_certificate_re_signed_with_another_key_is_caught(db_url, key, tmp_path) -> None:
@@ -201,7 +228,10 @@ def test_a_certificate_re_signed_with_another_key_is_caught(db_url, key, tmp_pat
 
     files = write(db_url, 1, tmp_path, station_key(tmp_path / "rogue.pem", create_missing=True))
     result = verify(db_url, files.html, key)
-    assert [check for check, _ in mismatches(result)] == ["key", "signature"]
+    found = mismatches(result)
+    assert [check for check, _ in found] == ["key"]  # one line, not a pile of mismatches
+    assert re.fullmatch(r"signed by key [0-9a-f]{16}, checked against key [0-9a-f]{16}: wrong --key/--public-key\?",
+                        found[0][1])
     assert json.loads(json.dumps(result.as_dict()))["verified"] is False
 
 

@@ -57,10 +57,29 @@ def test_verify_json_keys_are_the_ones_the_help_lists(run, db_url, key, tmp_path
 
 def test_verify_exits_0_when_everything_matches_and_finds_a_run_certificate_by_id(run, db_url, key, tmp_path):
     certify(run, db_url, key, tmp_path, "1")
-    public = key.path.parent / "station-ed25519.pub.pem"
+    public = key.path.parent / "station-key.crt.pem"
     result = run("verify", "1", "--dir", str(tmp_path), "--db", db_url, "--public-key", str(public))
     assert result.exit_code == 0, result.stdout + result.stderr
     assert result.stdout.startswith("VERIFIED: ")
+    assert "  ok       run: holds run 1" in result.stdout.splitlines()
+
+
+def test_verify_finds_the_public_key_written_beside_the_certificate(run, db_url, key, tmp_path):
+    made = certify(run, db_url, key, tmp_path / "out", "1")
+    assert Path(made["public_key"]) == tmp_path / "out" / f"station-key-{made['fingerprint'][:16]}.crt.pem"
+    result = run("verify", made["html"], "--db", db_url)  # no key option, no station key on this machine
+    assert result.exit_code == 0, result.stdout + result.stderr
+    assert f"trusted key {made['fingerprint'][:16]} from {made['public_key']})" in result.stdout
+
+
+def test_verify_run_in_a_folder_holding_another_runs_file_names_it(run, db_url, key, tmp_path):
+    first = Path(certify(run, db_url, key, tmp_path, "1")["html"])
+    second = Path(certify(run, db_url, key, tmp_path, "2")["html"])
+    second.write_bytes(first.read_bytes())  # run 2's file name, run 1's certificate
+    result = run("verify", "2", "--dir", str(tmp_path), "--db", db_url, "--key", str(key.path))
+    assert result.exit_code == 1
+    assert any(line.startswith("  mismatch run: expected the certificate of run 2, the file holds run 1")
+               for line in result.stdout.splitlines())
 
 
 def test_verify_exits_1_and_names_the_field_when_the_database_was_edited(run, db_url, key, tmp_path):
@@ -77,7 +96,8 @@ def test_verify_without_the_database_checks_file_and_signature_only(run, db_url,
     result = run("verify", html, "--no-db", "--key", str(key.path), "--json")
     assert result.exit_code == 0
     findings = {f["check"]: f["status"] for f in json.loads(result.stdout)["findings"]}
-    assert findings == {"hash": "ok", "key": "ok", "signature": "ok", "database": "skipped"}
+    assert findings == {"key": "ok", "signature": "ok", "hash": "ok", "number": "ok", "document": "ok",
+                        "visible": "ok", "database": "skipped"}
 
 
 @pytest.mark.parametrize("args, message", [
@@ -100,6 +120,8 @@ def test_a_file_that_is_no_certificate_is_bad_input(run, db_url, key, tmp_path):
 
 def test_verify_without_any_station_key_is_bad_input(run, db_url, key, tmp_path):
     html = certify(run, db_url, key, tmp_path, "1")["html"]
+    for published in tmp_path.glob("station-key-*.crt.pem"):
+        published.unlink()  # the auditor got the file alone
     result = run("verify", html, "--db", db_url)  # the default key location is empty in this test
     assert result.exit_code == 2 and "give --public-key FILE" in result.stderr
 
