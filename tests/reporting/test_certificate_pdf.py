@@ -146,12 +146,12 @@ def test_pyhanko_validator_accepts_the_signature_chained_to_the_station_certific
 
 
 def test_verify_pdf_certificate_passes_an_untouched_pdf(failed: CertificateFiles, own_key: StationKey) -> None:
-    check = verify_pdf_certificate(_pdf(failed), own_key.certificate)
+    check = verify_pdf_certificate(_pdf(failed), own_key.certificate, safety_caution=SAFETY_CAUTION)
     assert check.ok, check.findings
     assert [c for c, _, _ in check.findings] == ["PDF signature", "signer", "signature intact", "whole file signed",
                                                  "attached certificate", "pages"]
     # Trusting only the public key (a verifier holding the key, not the certificate) gives the same answer.
-    assert verify_pdf_certificate(_pdf(failed), own_key.private_key.public_key()).ok
+    assert verify_pdf_certificate(_pdf(failed), own_key.private_key.public_key(), safety_caution=SAFETY_CAUTION).ok
 
 
 def test_one_byte_changed_in_the_page_content_is_reported_by_pdfsig_pyhanko_and_verify(
@@ -162,7 +162,7 @@ def test_one_byte_changed_in_the_page_content_is_reported_by_pdfsig_pyhanko_and_
     assert "Signature Validation: Signature is Valid." not in _pdfsig(path)  # poppler reports it invalid
     status = _pyhanko_status(tampered, own_key.certificate)
     assert not status.intact
-    check = verify_pdf_certificate(tampered, own_key.certificate)
+    check = verify_pdf_certificate(tampered, own_key.certificate, safety_caution=SAFETY_CAUTION)
     assert ("signature intact", MISMATCH) in [(c, s) for c, s, _ in check.findings]
     assert ("pages", MISMATCH) in [(c, s) for c, s, _ in check.findings]
 
@@ -214,7 +214,7 @@ def test_a_pdf_signed_by_another_key_names_both_keys(failed: CertificateFiles, o
     view, record = _view_of(failed)
     resigned = sign_certificate_pdf(certificate_pdf(view, record), failed.html.read_text(encoding="utf-8"),
                                     failed.number, other_key)
-    check = verify_pdf_certificate(resigned, own_key.certificate)
+    check = verify_pdf_certificate(resigned, own_key.certificate, safety_caution=SAFETY_CAUTION)
     assert not check.ok
     signer = [d for c, s, d in check.findings if c == "signer" and s == MISMATCH]
     assert signer == [f"signed by key {fingerprint(other_key.private_key.public_key())}, checked against key "
@@ -238,7 +238,7 @@ def test_an_incremental_update_after_signing_that_paints_a_new_verdict_is_caught
     path.write_bytes(changed)
     assert "Total document signed" not in _pdfsig(path)
     assert _pyhanko_status(changed, own_key.certificate).coverage != SignatureCoverageLevel.ENTIRE_FILE
-    check = verify_pdf_certificate(changed, own_key.certificate)
+    check = verify_pdf_certificate(changed, own_key.certificate, safety_caution=SAFETY_CAUTION)
     assert ("whole file signed", MISMATCH) in [(c, s) for c, s, _ in check.findings]
 
 
@@ -248,7 +248,7 @@ def test_pages_that_differ_from_the_attached_record_are_named_even_when_signed_b
     assert view.verdict == "FAIL"
     lying = certificate_pdf(CertificateView(**{**view.__dict__, "verdict": "PASS", "verdict_key": "pass"}), record)
     signed = sign_certificate_pdf(lying, failed.html.read_text(encoding="utf-8"), failed.number, own_key)
-    check = verify_pdf_certificate(signed, own_key.certificate)
+    check = verify_pdf_certificate(signed, own_key.certificate, safety_caution=SAFETY_CAUTION)
     assert [(c, s) for c, s, _ in check.findings if s != OK] == [("pages", MISMATCH)]
 
 
