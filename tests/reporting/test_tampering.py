@@ -206,3 +206,17 @@ def test_a_run_of_another_unit_in_the_same_database_is_one_line(db_url, key, mad
         connection.execute(text("UPDATE unit SET serial = 'PW22-000010' WHERE serial = 'PW22-000001'"))
     found = [(f.check, f.detail) for f in check(db_url, made[1], key).findings if f.status == MISMATCH]
     assert found == [("database", "run 1 in this database is unit PW22-000010, not PW22-000001: wrong --db?")]
+
+
+def test_a_seal_carrying_another_keys_certificate_is_named(db_url, key, made, tmp_path) -> None:
+    from fixture.reporting.signing import certificate_pem
+
+    other = station_key(tmp_path / "other" / "station-key.pem", create_missing=True)
+    html = made[1].read_text(encoding="utf-8")
+    seal_element = json_elements(html)[1]
+    seal = json.loads(seal_element.group(2))
+    seal["certificate"] = certificate_pem(other.certificate)
+    made[1].write_bytes((html[:seal_element.start(2)] + json.dumps(seal) + html[seal_element.end(2):]).encode())
+    assert failures(check(None, made[1], key)) == {
+        "seal": f"the X.509 certificate in the seal is of key {other.fingerprint[:16]}, the seal names key "
+                f"{key.fingerprint[:16]}"}

@@ -84,7 +84,7 @@ def test_reading_the_key_file_is_refused_every_way(db_url, key, tmp_path) -> Non
 
 
 @pytest.mark.parametrize("statement", ["include '{}'", "extends '{}'", "import '{}' as other"])
-@pytest.mark.parametrize("name", ["{key}", "../keys/station-ed25519.pem", "../../{rel}"])
+@pytest.mark.parametrize("name", ["{key}", "../keys/station-key.pem", "../../{rel}"])
 def test_a_file_outside_the_template_folders_is_never_loaded(db_url, key, tmp_path, name, statement) -> None:
     # jinja2's FileSystemLoader refuses absolute names and any ".." path segment (jinja2.loaders.split_template_path).
     name = name.format(key=key.path, rel=key.path.relative_to(tmp_path.parent))
