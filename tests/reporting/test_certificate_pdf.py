@@ -41,6 +41,7 @@ from fixture.reporting.render import seal_facts
 from fixture.reporting.signing import StationKey, certificate_pem, fingerprint, public_certificate_name
 from fixture.safety import SAFETY_CAUTION
 from fixture.store import open_store
+from tests.reporting.conftest import HOSTILE
 
 A4_PT = (595.276, 841.89)  # ISO 216: 210 mm x 297 mm at 72 pt per 25.4 mm
 MIN_MARGIN_PT = 15 / 25.4 * 72  # the brief's floor: 15 mm
@@ -271,3 +272,16 @@ def test_knobline_verify_takes_a_pdf_and_fails_a_tampered_one(failed: Certificat
     bad = CliRunner().invoke(main, ["verify", str(tampered), "--no-db"])
     assert bad.exit_code == 1, bad.output
     assert "mismatch pdf: signature intact" in bad.output
+
+
+def test_outside_text_prints_literally_and_the_creation_date_is_the_run_end(db_url: str, tmp_path: Path,
+                                                                            own_key: StationKey) -> None:
+    hostile = _issue(db_url, 2, tmp_path / "out", own_key)  # serial, lot and operator are "<script>..." text
+    run = subprocess.run([_tool("pdftotext"), "-raw", str(hostile.pdf), "-"], capture_output=True, text=True,
+                         timeout=60, check=True)
+    assert f"Serial number {HOSTILE}" in " ".join(run.stdout.split())
+    pypdf = pytest.importorskip("pypdf")
+    info = pypdf.PdfReader(io.BytesIO(_pdf(hostile))).metadata
+    # conftest: run 2 started T0 + 5 min and ended 2 s later (ISO 32000-1 7.9.4 date string).
+    assert info["/CreationDate"] == "D:20260302080502+00'00'"
+    assert verify_pdf_certificate(_pdf(hostile), own_key.certificate, safety_caution=SAFETY_CAUTION).ok
