@@ -14,6 +14,7 @@ from fixture.cli import main
 from fixture.files.design_file import load_design
 from fixture.sim.batch import plan_batch
 from fixture.store import open_store
+from tests.json_keys import all_keys, documented_json_keys
 
 
 def test_demo_batch_fails_every_planted_defect_and_stores_every_run(tmp_path: Path) -> None:
@@ -51,6 +52,7 @@ def test_demo_ends_with_a_batch_report_and_the_verify_command_that_works_from_he
     result = CliRunner().invoke(main, ["demo", "--units", "8", "--seed", "3", "--out", "knobline-demo"],
                                 catch_exceptions=False)
     assert result.exit_code == 0, result.stderr
+    assert "certificates: 8 of 8 written" in result.stderr.splitlines()
     lines = result.stdout.splitlines()
     report = Path(next(ln for ln in lines if ln.startswith("batch report: ")).split(": ", 1)[1])
     assert "First-pass yield" in report.read_text(encoding="utf-8")
@@ -60,6 +62,18 @@ def test_demo_ends_with_a_batch_report_and_the_verify_command_that_works_from_he
     verify = CliRunner().invoke(main, shlex.split(command)[1:], catch_exceptions=False)
     assert verify.exit_code == 0, verify.stdout + verify.stderr
     assert verify.stdout.startswith("VERIFIED: ")
+
+
+def test_demo_json_keys_are_the_ones_the_help_lists(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    monkeypatch.setenv("XDG_DATA_HOME", str(tmp_path / "empty"))
+    result = CliRunner().invoke(main, ["demo", "--units", "15", "--seed", "3", "--out", str(tmp_path), "--json"],
+                                catch_exceptions=False)
+    assert result.exit_code == 0, result.stderr
+    data = json.loads(result.stdout)
+    help_text = CliRunner().invoke(main, ["demo", "--help"]).stdout
+    keys = {part for key in all_keys(data) for part in key.split("-")}  # "station-fault" reads as two words
+    assert keys == documented_json_keys(help_text)
+    assert data["defective"] and data["certificate_count"] == data["verdicts"]["pass"] + data["verdicts"]["fail"] and data["certificates_not_written"] == []
 
 
 def test_batch_report_prints_hostile_lot_codes_and_operators_as_text(tmp_path: Path) -> None:
