@@ -165,7 +165,7 @@ def main() -> None:
         d = np.asarray(delays, dtype=float)
         missed = int(np.sum(~np.isfinite(d)))
 
-        def pct(q: float) -> str:
+        def pct(q: float, d: np.ndarray = d) -> str:
             value = float(np.percentile(d, q, method="inverted_cdf"))  # a missed lot counts as never
             return f"{value:.0f}" if math.isfinite(value) else "never"
         print(f"{sc.name:28s} {np.median(sizes):9.0f}  {pct(50):>6s} {pct(90):>8s}  {missed:3d} of {len(d):3d}"
