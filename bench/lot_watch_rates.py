@@ -144,7 +144,7 @@ def main() -> None:
     print("standardized values of in-control units (mean, sd; 0 and 1 when the standardization holds):")
     for part, values in z.items():
         v = np.asarray(values)
-        print(f"  {part_label(design, part):32s} n {v.size:5d}  mean {v.mean():+.3f} (se {v.std(ddof=1) / math.sqrt(v.size):.3f})"
+        print(f"  {part_label(design, part):44s} n {v.size:5d}  mean {v.mean():+.3f} (se {v.std(ddof=1) / math.sqrt(v.size):.3f})"
               f"  sd {v.std(ddof=1):.3f}")
 
     print(f"\ndetection: {args.batches} batches of {args.units} units per scenario; delay = units of the planted lot "
