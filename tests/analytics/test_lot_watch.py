@@ -19,7 +19,7 @@ from fixture.analytics.lot_watch import (
     recentred_design,
     watch_unit,
 )
-from fixture.analytics.lot_watch_run import state_of, watch_run
+from fixture.analytics.lot_watch_run import state_of, step_run, watch_run
 from fixture.files.design_file import load_design
 from fixture.model.design import ProductDesign
 from fixture.sim.batch import BatchPlan, plan_batch
@@ -240,3 +240,13 @@ def test_a_chart_stepped_by_another_station_meanwhile_is_not_overwritten(store: 
     with pytest.raises(ChartMoved):
         record_lot_watch(store, second, entries, stale)
     assert run_lot_watch(store, second) == []
+
+
+def test_a_step_computed_from_a_stale_chart_is_computed_again_from_the_stored_one(store: Store, design) -> None:
+    plan = plan_batch(design, units=2, seed=3, shift=0.0, defect_fraction=0.0)
+    (first, lots), (second, _) = _record(store, design, plan, seed=3)
+    watch_run(store, design, first, lots)
+    rs = [Reading(m.knob_a_pct, m.knob_b_pct, m.quantity, m.value)
+          for step in store.run(second).steps for m in step.measurements]
+    step_run(store, design, second, lots, diagnose_unit(design, rs), stored={})  # as if read before the first
+    assert {e.units + e.left_out for e in run_lot_watch(store, second)} == {2}  # continued, not restarted
