@@ -67,6 +67,16 @@ def test_the_limits_each_series_was_judged_by_come_back_with_their_uncertainty(b
     assert only.readings == 3 and only.variants == 1  # first judged runs of U1, U2, U4
 
 
+def test_limits_that_changed_during_the_batch_are_counted_and_the_most_used_set_returned(batch: Store) -> None:
+    run_id = batch.begin_run("U5", {}, "line-1", "operator", "0.0-test", SEQUENCE_SHA, DESIGN_SHA,
+                                         started_at=T0)
+    batch.record_step(run_id, 0, "frequency at knob A stops", "pass", T0, T0, "", [reading(1000.0, "pass", u=0.4)])
+    batch.finish_run(run_id, "pass", ended_at=T0)
+    (only,) = judged_limits(batch)
+    assert only.variants == 2
+    assert only.expanded_uncertainty == 0.2 and only.readings == 3  # three readings against one
+
+
 def two_sided_exact_p(k: int, n: int, p: float) -> float:
     """The exact two-sided binomial p-value by its definition: the total probability of every outcome no
     more likely than the one observed (Clopper and Pearson's exact test; method of small p-values)."""
