@@ -1,4 +1,4 @@
-"""Diagnosis: component values estimated from a unit's readings, suspects named, shifted lots found.
+"""Diagnosis: component values estimated from a unit's readings, suspects named (lots: test_lot_attribution.py).
 
 References are the simulated units' own true part values (fixture.sim.dut draws them and the test
 reads them back), never demo numbers. Readings are the design's signal at the true values (the
@@ -19,12 +19,9 @@ from fixture.analytics.diagnosis import (
     ReadingUncertainty,
     diagnose_unit,
 )
-from fixture.analytics.lot_diagnosis import diagnose_lot, diagnose_lots
 from fixture.errors import UserInputError
 from fixture.files.design_file import load_design
-from fixture.sim.batch import plan_batch
 from fixture.sim.dut import Defect, SimulatedUnit, build_unit
-from fixture.model.circuits.part_roles import part_name
 
 ROOT = Path(__file__).resolve().parents[2]
 U = ReadingUncertainty(frequency_rel=1e-4, duty_pp=0.05)
@@ -147,52 +144,6 @@ def test_a_wrong_part_is_named_with_its_value(design, part: str, factor: float) 
     assert design.part(part).ref in result.finding
 
 
-def test_shifted_lot_is_found_and_reads_its_shift_within_two_standard_errors(design) -> None:
-    shift = -0.08
-    plan = plan_batch(design, units=36, seed=11, shifted_part="c_integrator", shift=shift)
-    part, lot, _ = plan.shifted
-    rng = np.random.default_rng(1)
-    diagnoses = {}
-    for planned in plan.units:
-        unit = plan.build(design, planned)
-        readings = unit_readings(design, unit, rng)
-        diagnoses[planned.serial] = diagnose_unit(design, readings, serial=planned.serial, uncertainty=U,
-                                                  ambient_c=unit.ambient_c)
-    findings = diagnose_lots(diagnoses, {u.serial: u.lots for u in plan.units})
-    # the strongest lot nobody else's lot explains (lots of R5 or R3 coinciding with it read alike)
-    strongest = max((f for f in findings if math.isfinite(f.t) and f.explained_by is None), key=lambda f: abs(f.t))
-    assert (strongest.part, strongest.lot) == (part, lot), strongest.finding
-    mean, se = strongest.shift_pct
-    assert abs(mean - 100.0 * shift) <= 2.0 * se, strongest.finding
-    # the part in words (designator and role), never its key
-    name = part_name(part, design.part(part).ref)
-    assert f"lot {lot} of {name} reads about {mean:+.1f} % on average (+-{se:.1f} %" in strongest.finding
-    assert part not in strongest.finding
-    # the other lots of the same part read no shift beyond 3 standard errors
-    for f in findings:
-        if f.part == part and f.lot != lot:
-            assert abs(f.t) < 3.0, f.finding
-
-
-def test_a_lot_that_coincides_with_the_shifted_lot_is_explained_by_it(design) -> None:
-    # R5 and C1 move the readings alike, so an R5 lot built into mostly the same units as a -8 %
-    # C1 lot reads shifted too. Only the units they do not share can tell: here units 0-1 have the
-    # C1 lot alone (and read low), units 10-11 the R5 lot alone (and read normal).
-    lots, diagnoses, rng = {}, {}, np.random.default_rng(2)
-    for i in range(16):
-        lots[f"K{i}"] = {"c_integrator": "CX" if i < 10 else "CY", "r_integrator": "RX" if 2 <= i < 12 else "RY"}
-        unit = build_unit(design, f"K{i}", seed=12, lots=lots[f"K{i}"], lot_shifts={"CX": -0.08})
-        diagnoses[f"K{i}"] = diagnose_unit(design, unit_readings(design, unit, rng), uncertainty=U,
-                                           ambient_c=unit.ambient_c)
-        result = diagnoses[f"K{i}"]
-        if i < 10 and result.single_fault:  # the likelier of the parts that fit alike: the -8 % capacitor
-            assert result.suspect.key == "c_integrator", result.finding
-    found = {(f.part, f.lot): f for f in diagnose_lots(diagnoses, lots)}
-    assert abs(found[("r_integrator", "RX")].t) > 3.0  # it does read shifted ...
-    assert found[("r_integrator", "RX")].explained_by == "c_integrator lot CX"  # ... and is explained
-    assert found[("c_integrator", "CX")].explained_by is None
-
-
 def test_units_without_signal_are_declined_with_the_reason(design) -> None:
     stuck = build_unit(design, "S1", seed=2, defects=[Defect("stuck-output", level="low")])
     result = diagnose(design, stuck)
@@ -201,23 +152,6 @@ def test_units_without_signal_are_declined_with_the_reason(design) -> None:
     assert "duty" in (diagnose_unit(design, only_freq).declined or "")
     clipped = only_freq + [Reading(50.0, 0.0, "duty_pct", 0.0), Reading(50.0, 100.0, "duty_pct", 100.0)]
     assert diagnose_unit(design, clipped).declined
-
-
-def test_declined_and_own_defect_units_are_left_out_of_a_lot(design) -> None:
-    good = [diagnose(design, build_unit(design, f"L{i}", seed=9), seed=i) for i in range(4)]
-    wrong = diagnose(design, build_unit(design, "L9", seed=9, defects=[Defect("wrong-part", part="r_integrator",
-                                                                               factor=10.0)]))
-    declined = diagnose_unit(design, [])
-    lot = diagnose_lot("c_integrator", "X", good + [wrong, declined])
-    assert (lot.units, lot.excluded) == (4, 2)
-    values = [d.part("c_integrator").deviation_pct for d in good]
-    # standard error of a mean: sample standard deviation over sqrt(n) (any statistics text)
-    assert lot.mean_deviation_pct["c_integrator"] == pytest.approx((np.mean(values), np.std(values, ddof=1) / 2.0))
-    # the lot's shift undoes the prior's pull: E[estimate] = s x true for a linear-Gaussian posterior
-    # mean with data share s (e.g. Kay, Fundamentals of Statistical Signal Processing I, ch. 10;
-    # from memory)
-    share = np.mean([d.part("c_integrator").data_share for d in good])
-    assert lot.shift_pct == pytest.approx((np.mean(values) / share, np.std(values, ddof=1) / 2.0 / share))
 
 
 def test_period_and_frequency_from_the_same_stop_count_once(design) -> None:

@@ -116,3 +116,38 @@ def test_test_refuses_two_different_lots_for_one_part(tmp_path: Path) -> None:
         assert result.exit_code == 2, result.output
         assert "c_integrator" in result.stderr and "C1-2612B" in result.stderr
     assert not db.exists()
+
+
+def test_the_demo_report_names_the_planted_lot_and_no_other(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    # the demo's own answer key (its planted lot) is the reference: a finding may name the planted
+    # lot alone or with lots this batch cannot tell from it, never an innocent lot on its own
+    monkeypatch.setenv("XDG_DATA_HOME", str(tmp_path / "empty"))
+    result = CliRunner().invoke(main, ["demo", "--out", str(tmp_path), "--json"], catch_exceptions=False)
+    assert result.exit_code == 0, result.stderr
+    data = json.loads(result.stdout)
+    (planted,) = data["planted"]
+    assert data["lot_findings"], "the planted lot was not found"
+    for finding in data["lot_findings"]:
+        assert planted["lot"] in finding["lots"], finding["words"]
+        low, high = finding["interval_pct"]
+        assert low <= finding["shift_pct"] <= high
+    report = CliRunner().invoke(main, ["report", "batch", "--db", str(tmp_path / "results.sqlite"), "--out",
+                                       str(tmp_path / "again"), "--json"], catch_exceptions=False)
+    assert report.exit_code == 0, report.stderr
+    assert [f["lots"] for f in json.loads(report.stdout)["lot_findings"]] == [f["lots"] for f in data["lot_findings"]]
+
+
+def test_a_demo_with_no_lot_off_plants_none_and_finds_none(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    monkeypatch.setenv("XDG_DATA_HOME", str(tmp_path / "empty"))
+    result = CliRunner().invoke(main, ["demo", "--units", "30", "--lot-shift", "none", "--out", str(tmp_path),
+                                       "--json"], catch_exceptions=False)
+    assert result.exit_code == 0, result.stderr
+    data = json.loads(result.stdout)
+    assert data["planted"] == [] and data["lot_findings"] == []
+
+
+@pytest.mark.parametrize("text", ["X9:-8", "C1:lots", "C1:-80", "C1"])
+def test_a_lot_shift_that_names_no_lotted_part_or_percent_is_bad_input(tmp_path: Path, text: str) -> None:
+    result = CliRunner().invoke(main, ["demo", "--lot-shift", text, "--out", str(tmp_path)])
+    assert result.exit_code == 2
+    assert "--lot-shift" in result.stderr and "Traceback" not in result.stderr
