@@ -49,8 +49,28 @@ def test_limits_json_has_a_row_per_stop_and_quantity_with_nominal_low_high(run) 
 
 def test_limits_help_spells_out_the_json_keys(run) -> None:
     result = run("limits", "--help")
-    for key in ("nominal", "low", "high", "tolerance_low", "predicted_yield", "contributors"):
+    for key in ("nominal", "low", "high", "tolerance_low", "predicted_yield", "contributors",
+                "predicted_first_pass_yield", "joint_first_pass_yield", "false_reject_share"):
         assert key in result.stdout
+
+
+def test_limits_predict_first_pass_yield_against_the_acceptance_limits_per_row_and_jointly(run) -> None:
+    result = run("limits", "--samples", "2000", "--json")
+    assert result.exit_code == 0, result.stderr
+    data = json.loads(result.stdout)
+    for row in data["rows"]:
+        first_pass = row["predicted_first_pass_yield"]
+        assert set(first_pass) == {"fraction", "ci95_low", "ci95_high", "passed", "simulated", "false_reject_share",
+                                   "false_accept_share"}
+        assert first_pass["simulated"] == 2000
+        # (the Wilson bound at 100 % comes out a rounding error below 1)
+        assert first_pass["ci95_low"] <= first_pass["fraction"] <= first_pass["ci95_high"] + 1e-12
+        if row["predicted_yield"] is not None:  # guarded acceptance (w = U >= 0) costs, never gains, here
+            assert first_pass["fraction"] <= row["predicted_yield"]["fraction"]
+    joint = data["joint_first_pass_yield"]
+    assert joint["simulated"] == 2000 and joint["fraction"] <= data["joint_spec_yield"]["fraction"]
+    text = run("limits", "--samples", "2000").stdout
+    assert "pred. first pass" in text and "predicted first-pass yield, every reading inside" in text
 
 
 def test_predict_prints_the_models_nominal_signal(run) -> None:

@@ -102,6 +102,18 @@ def test_no_identifier_on_the_certificate_the_terminal_or_the_batch_report(demo:
     assert "C1 integrator capacitor" in by_lot and identifiers_in(by_lot) == []
 
 
+def test_the_batch_report_sets_predicted_first_pass_beside_observed_per_step_in_words(demo: Path) -> None:
+    page = visible_text((demo / "batch-report.html").read_text(encoding="utf-8"))
+    section = page[page.index("Predicted against observed first-pass yield"):page.index("Failing steps")]
+    # the demo sequence's two knob-matrix steps are predicted; the other steps are named with the reason
+    assert "frequency at knob A stops" in section and "duty at knob B stops" in section
+    assert "Not predicted: power up" in section
+    assert any(v in section for v in ("consistent with the prediction", "lower than predicted",
+                                      "higher than predicted", "no unit reached this step"))
+    assert "exact binomial test p" in section
+    assert identifiers_in(section) == []
+
+
 def test_the_terminal_prints_each_reading_as_the_certificate_does(demo: Path) -> None:
     with open_store(str(demo / "results.sqlite")) as store:
         runs = store.runs(limit=10)
