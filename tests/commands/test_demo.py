@@ -133,6 +133,11 @@ def test_the_demo_report_names_the_planted_lot_and_no_other(tmp_path: Path, monk
         assert planted["lot"] in finding["lots"], finding["words"]
         low, high = finding["interval_pct"]
         assert low <= finding["shift_pct"] <= high
+    html = Path(data["batch_report"]).read_text(encoding="utf-8")
+    decisions = html.split('<section class="decisions">', 1)[1].split("</section>", 1)[0]
+    assert f"Hold lot {planted['lot']}." in decisions  # the report leads with the decision
+    alerts = html.split("Early warning during the batch", 1)[1].split("<h3", 1)[0]
+    assert f"lot {planted['lot']}" in alerts  # the alert raised while testing is shown with the findings
     report = CliRunner().invoke(main, ["report", "batch", "--db", str(tmp_path / "results.sqlite"), "--out",
                                        str(tmp_path / "again"), "--json"], catch_exceptions=False)
     assert report.exit_code == 0, report.stderr
