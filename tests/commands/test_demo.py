@@ -44,7 +44,7 @@ def test_test_command_takes_lots_from_a_traveller(tmp_path: Path) -> None:
         assert store.unit("PW22-000777").lots == {"c_integrator": "C1-2611A", "knob_a_pot": "RV1-2609B"}
 
 
-def test_demo_ends_with_a_batch_report_and_the_verify_command_that_works_from_here(
+def test_demo_ends_with_next_steps_that_work_as_printed_and_a_second_demo_continues(
         tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
     monkeypatch.chdir(tmp_path)  # where the user typed the command; --out is relative, as they would write it
     monkeypatch.setenv("XDG_DATA_HOME", str(tmp_path / "empty"))  # no station key of this machine to fall back on
@@ -57,11 +57,19 @@ def test_demo_ends_with_a_batch_report_and_the_verify_command_that_works_from_he
     report = Path(next(ln for ln in lines if ln.startswith("batch report: ")).split(": ", 1)[1])
     assert "First-pass yield" in report.read_text(encoding="utf-8")
     assert len(sorted(Path("knobline-demo/certificates").glob("*.html"))) == 8
-    command = lines[-1].removeprefix("check a certificate: ")
-    assert command != lines[-1] and command.startswith("knobline verify knobline-demo/certificates/KL-")
-    verify = CliRunner().invoke(main, shlex.split(command)[1:], catch_exceptions=False)
-    assert verify.exit_code == 0, verify.stdout + verify.stderr
-    assert verify.stdout.startswith("VERIFIED: ")
+    # the summary ends with three commands to copy, each of which works as printed from here
+    steps = lines[lines.index("next steps:") + 1:]
+    assert [s.split()[:2] for s in steps] == [["knobline", "yield"], ["knobline", "unit"], ["knobline", "verify"]]
+    assert steps[2].strip().startswith("knobline verify knobline-demo/certificates/KL-")
+    for command in steps:
+        done = CliRunner().invoke(main, shlex.split(command)[1:], catch_exceptions=False)
+        assert done.exit_code == 0, command + "\n" + done.stdout + done.stderr
+    assert done.stdout.startswith("VERIFIED: ")
+    # a second demo into the same folder continues the serial numbers instead of retesting units
+    again = CliRunner().invoke(main, ["demo", "--units", "3", "--seed", "3", "--out", "knobline-demo",
+                                      "--no-reports", "--json"], catch_exceptions=False)
+    assert again.exit_code == 0, again.stderr
+    assert [r["serial"] for r in json.loads(again.stdout)["runs"]] == ["PW22-000009", "PW22-000010", "PW22-000011"]
 
 
 def test_demo_json_keys_are_the_ones_the_help_lists(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
