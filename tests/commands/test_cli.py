@@ -324,3 +324,12 @@ def test_measure_refuses_a_serial_with_a_nul_or_control_character(run) -> None:
         result = run("measure", "--serial", serial)
         assert result.exit_code == 2, result.output
         assert "--serial" in result.stderr
+
+
+def test_a_count_of_one_takes_the_singular_noun(run) -> None:
+    # English grammar (common practice, no source): "1 simulated unit", never "1 simulated units".
+    one = run("decode", "--samples", "1")
+    assert one.exit_code == 0, one.stderr
+    assert "1 simulated unit," in one.stdout
+    two = run("decode", "--samples", "2")
+    assert "2 simulated units," in two.stdout
