@@ -26,11 +26,82 @@ def run():
     return invoke
 
 
-def test_start_up_states_the_safety_caution(run) -> None:
-    result = run("info")
-    assert result.exit_code == 0
-    assert "does not verify electrical safety or isolation" in result.stderr
+CAUTION = "does not verify electrical safety or isolation"
+
+
+def test_a_command_that_powers_a_unit_states_the_safety_caution_once_as_it_starts(run, tmp_path, monkeypatch) -> None:
+    # Common practice, no source: the caution stands where a unit is powered, once, on stderr.
+    monkeypatch.setenv("KNOBLINE_DB", str(tmp_path / "r.sqlite"))
+    result = run("measure", "--knob-a", "20", "--knob-b", "30")
+    assert result.exit_code == 0, result.stderr
+    assert result.stderr.count(CAUTION) == 1
     assert "hipot" in result.stderr and "leakage" in result.stderr
+    assert CAUTION not in result.stdout
+
+
+@pytest.mark.parametrize("args", [("info",), ("check",), ("verify", "--help"), ("measure", "--help"),
+                                  ("test", "--help"), ("demo", "--help")])
+def test_a_command_that_powers_no_unit_prints_no_safety_banner(run, args) -> None:
+    result = run(*args)
+    assert result.exit_code == 0, result.stderr
+    assert CAUTION not in result.stderr
+
+
+def test_the_top_level_help_states_the_safety_caution(run) -> None:
+    result = run("--help")
+    assert result.exit_code == 0
+    assert CAUTION in " ".join(result.stdout.split())
+
+
+@pytest.mark.parametrize(("args", "says"), [
+    (("limits", "--frob"), "No such option '--frob'"),           # unknown option
+    (("unit",), "Missing argument 'SERIAL'"),                    # missing argument
+    (("limits", "--method", "nope"), "'nope' is not one of"),    # bad choice
+    (("--frob",), "No such option '--frob'"),                    # unknown option of knobline itself
+    (("verifyy",), "No such command 'verifyy'"),                 # unknown command
+])
+def test_a_usage_error_is_one_knobline_error_line_with_exit_2(run, args, says) -> None:
+    # click's own text for each (click.exceptions), in knobline's one-line form; exit 2 as click's usage errors.
+    result = run(*args)
+    assert result.exit_code == 2
+    assert result.stdout == ""
+    lines = result.stderr.splitlines()
+    assert len(lines) == 1, result.stderr
+    assert lines[0].startswith("knobline: error: ") and says in lines[0]
+    assert "Usage:" not in result.stderr and "Try " not in result.stderr
+
+
+def test_a_simulated_resource_the_bench_lacks_is_one_error_line_naming_the_key_and_no_warning(run, tmp_path) -> None:
+    # pyvisa-sim opens any resource and reads '' with a UserWarning (pyvisa messagebased.read); a real
+    # VISA library refuses an unknown resource (VI_ERROR_RSRC_NFOUND, VPP-4.3). knobline refuses it too.
+    station = tmp_path / "station.toml"
+    station.write_text(Path("sequences/demo-station.toml").read_text(encoding="utf-8").replace(
+        "TCPIP0::sim-counter::inst0::INSTR", "TCPIP0::nowhere::inst0::INSTR"), encoding="utf-8")
+    result = run("station", str(station))
+    assert result.exit_code == 2
+    assert result.stderr.splitlines() == [
+        f"knobline: error: {station}: instruments.counter.resource: expected one of the simulated bench's resources "
+        "(TCPIP0::sim-counter::inst0::INSTR, TCPIP0::sim-scope::inst0::INSTR, TCPIP0::sim-supply::inst0::INSTR, "
+        "TCPIP0::sim-actuator::inst0::INSTR), found 'TCPIP0::nowhere::inst0::INSTR'"]
+
+
+@pytest.mark.filterwarnings("default::UserWarning")  # shown, not raised: what a user's interpreter does
+def test_a_python_warning_goes_to_the_log_file_not_the_terminal(run, monkeypatch, _own_log_file) -> None:
+    import warnings
+
+    import fixture.commands.info as info_module
+
+    def warning_version(dist: str) -> str:
+        warnings.warn("read string doesn't end with termination characters", UserWarning, stacklevel=1)
+        return "1.0"
+
+    monkeypatch.setattr(info_module, "_version", warning_version)
+    shown = warnings.showwarning
+    result = run("info")
+    assert result.exit_code == 0, result.stderr
+    assert "UserWarning" not in result.stderr + result.stdout
+    assert "termination characters" in _own_log_file.read_text(encoding="utf-8")
+    assert warnings.showwarning is shown  # the display is the caller's again afterwards
 
 
 def test_limits_json_has_a_row_per_stop_and_quantity_with_nominal_low_high(run) -> None:
@@ -253,3 +324,12 @@ def test_measure_refuses_a_serial_with_a_nul_or_control_character(run) -> None:
         result = run("measure", "--serial", serial)
         assert result.exit_code == 2, result.output
         assert "--serial" in result.stderr
+
+
+def test_a_count_of_one_takes_the_singular_noun(run) -> None:
+    # English grammar (common practice, no source): "1 simulated unit", never "1 simulated units".
+    one = run("decode", "--samples", "1")
+    assert one.exit_code == 0, one.stderr
+    assert "1 simulated unit," in one.stdout
+    two = run("decode", "--samples", "2")
+    assert "2 simulated units," in two.stdout

@@ -112,7 +112,7 @@ def test_a_commands_help_exits_0_and_an_unknown_command_is_a_usage_error() -> No
     assert verify_help.stdout.startswith("Usage: knobline verify")
     unknown = runner.invoke(main, ["verifyy"], catch_exceptions=False)
     assert unknown.exit_code == 2
-    assert "No such command 'verifyy'." in unknown.stderr
+    assert unknown.stderr.startswith("knobline: error: No such command 'verifyy'")
 
 
 def test_a_command_that_cannot_be_imported_is_a_station_fault_of_that_command_alone(monkeypatch) -> None:
