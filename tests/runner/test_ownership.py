@@ -126,7 +126,7 @@ def test_a_killed_owners_run_is_marked_incomplete_by_the_next_start(tmp_path, pr
     processes.append(nxt)
     _, err = nxt.communicate(timeout=120)
     assert nxt.returncode == 0, err
-    assert "runs 1 were left running by a stopped process: marked incomplete" in err
+    assert "run 1 was left running by a stopped process: marked incomplete" in err
     assert verdicts(db) == {1: "incomplete", 2: "pass"}
     with open_store(str(db)) as store:
         assert lease_holder(store, STATION) is None  # released at the end
