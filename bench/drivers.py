@@ -61,7 +61,7 @@ def main() -> None:
     if hasattr(os, "sched_setaffinity"):
         os.sched_setaffinity(0, {sorted(os.sched_getaffinity(0))[0]})
     n, r = args.queries, args.repeats
-    profile = load_profile("tessaly-fc3120")
+    profile = load_profile("tessaly-yqc83")
     resource = RESOURCES["counter"]
 
     with tempfile.TemporaryDirectory() as tmp, device_file() as shipped:

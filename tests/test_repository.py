@@ -89,7 +89,7 @@ def test_wheel_carries_the_shipped_designs_and_report_templates(tmp_path: Path) 
     assert any(n.startswith("fixture/_data/reports/") for n in names)
     assert "fixture/cli.py" in names
     assert "fixture/sim/devices/bench.yaml" in names
-    assert "fixture/instruments/profiles/tessaly-fc3120.toml" in names
+    assert "fixture/instruments/profiles/tessaly-yqc83.toml" in names
     assert "fixture/store/migrations/versions/0001_initial.py" in names
 
 

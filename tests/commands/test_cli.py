@@ -246,13 +246,13 @@ def test_station_identifies_every_instrument_of_the_simulated_bench(run) -> None
     assert result.exit_code == 0, result.stderr
     data = json.loads(result.stdout)
     assert data["simulated"] is True
-    assert data["instruments"]["counter"]["identity"]["model"] == "FC-3120"
+    assert data["instruments"]["counter"]["identity"]["model"] == "YQ-C83"
 
 
 def test_station_with_an_expired_instrument_is_a_station_fault(run) -> None:
     result = run("station", "--on", "2027-03-15")
     assert result.exit_code == 3
-    assert "knobline: station fault: scope" in result.stderr and "TCL-26-03981" in result.stderr
+    assert "knobline: station fault: scope" in result.stderr and "VLQ-26-03981" in result.stderr
 
 
 def test_measure_on_the_simulated_bench_reads_the_simulated_units_own_signal(run, tmp_path: Path) -> None:

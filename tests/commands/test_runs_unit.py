@@ -44,7 +44,7 @@ def db_url(tmp_path: Path) -> str:
         store.record_sequence("final test", "demo-sequence.toml", SEQUENCE_SHA)
         store.record_station("line-1", "hall 2", STATION_SHA, "demo-station.toml")
 
-        counter = store.record_instrument("counter", "Tessaly Instruments", "FC-3120", "T31-0042", "1.04",
+        counter = store.record_instrument("counter", "Tessaly Instruments", "YQ-C83", "T31-0042", "1.04",
                                           calibration_certificate="CAL-26-0117",
                                           calibration_due=dt.date(2027, 1, 31), calibration_lab="in-house")
 
@@ -145,7 +145,7 @@ def test_unit_shows_lots_and_every_reading_with_its_limits_and_verdict(run, db_u
     assert MeasurementRecord(**duty) == DUTY
     assert first["decoder"] is None
     assert retest["decoder"]["scheme_a"] == "linear-in-period"
-    assert retest["instruments"] == [{"role": "counter", "make": "Tessaly Instruments", "model": "FC-3120",
+    assert retest["instruments"] == [{"role": "counter", "make": "Tessaly Instruments", "model": "YQ-C83",
                                       "serial": "T31-0042", "firmware": "1.04", "certificate": "CAL-26-0117",
                                       "calibration_due": "2027-01-31"}]
 

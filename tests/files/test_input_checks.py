@@ -122,10 +122,10 @@ def test_impossible_station_values_are_one_line(tmp_path, old, new, line_end) ->
 
 
 @pytest.mark.parametrize(("old", "new", "line_end"), [
-    ('profile = "tessaly-fc3120"', 'profile = "no-such-profile"', "instruments.counter.profile: expected one of the "
+    ('profile = "tessaly-yqc83"', 'profile = "no-such-profile"', "instruments.counter.profile: expected one of the "
      "shipped profiles"),
-    ('profile = "tessaly-fc3120"', 'profile = "tessaly-ps3005"', "instruments.counter.profile: expected a profile "
-     "for a counter, found 'tessaly-ps3005' (a supply profile)"),
+    ('profile = "tessaly-yqc83"', 'profile = "tessaly-yqp26"', "instruments.counter.profile: expected a profile "
+     "for a counter, found 'tessaly-yqp26' (a supply profile)"),
     ('resource = "TCPIP0::sim-counter::inst0::INSTR"', 'resource = "not a resource"',
      "instruments.counter.resource: expected a VISA resource string"),
     ('backend = "@sim"\ntimeout', 'backend = "@bogus"\ntimeout', "instruments.counter.backend: expected a VISA "),

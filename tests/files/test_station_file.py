@@ -74,7 +74,7 @@ def test_demo_station_maps_every_role_to_a_resource_and_profile() -> None:
 
 def test_testing_with_an_expired_instrument_is_refused(tmp_path: Path) -> None:
     config = load_station(DEMO)
-    with pytest.raises(CalibrationExpired, match="TCL-26-03981 was due 2027-02-28"):
+    with pytest.raises(CalibrationExpired, match="VLQ-26-03981 was due 2027-02-28"):
         config.require_calibrated(datetime.date(2027, 3, 1))
     assert config.require_calibrated(datetime.date(2027, 2, 28)) == []  # due day itself is still in
 

@@ -39,9 +39,9 @@ def scripted_session(profile: str, handler: Callable[[str], str | bytes | None],
 
 
 IDN = {
-    "tessaly-fc3120": "TESSALY INSTRUMENTS,FC-3120,T1,1.0",
-    "tessaly-ds1104": "TESSALY INSTRUMENTS,DS-1104,T2,1.0",
-    "tessaly-ps3005": "TESSALY INSTRUMENTS,PS-3005,T3,1.0",
+    "tessaly-yqc83": "TESSALY INSTRUMENTS,YQ-C83,T1,1.0",
+    "tessaly-yqs47": "TESSALY INSTRUMENTS,YQ-S47,T2,1.0",
+    "tessaly-yqp26": "TESSALY INSTRUMENTS,YQ-P26,T3,1.0",
     "knobline-ka2": "KNOBLINE,KA-2,T4,1.0",
 }
 

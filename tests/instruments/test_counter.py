@@ -18,7 +18,7 @@ from tests.files.edits import edited_copy
 from .fakes import IDN, FakeInstrument, scripted_session
 from .test_profiles import shipped
 
-PROFILE = "tessaly-fc3120"
+PROFILE = "tessaly-yqc83"
 
 
 def counter(replies=None, errors=()) -> tuple[Counter, list[str]]:
@@ -138,7 +138,7 @@ def test_bad_counter_settings_are_user_input_errors(kwargs, complaint) -> None:
     ("frequency", "0", "a frequency from 0.001 Hz"),
     ("frequency", "1E999", "a frequency"),
     ("frequency", "9.9E37", r"SCPI \+infinity"),
-    ("frequency", "4.0E+08", r"to 3.5e\+08 Hz"),  # above the FC-3120 profile's stated range
+    ("frequency", "4.0E+08", r"to 3.5e\+08 Hz"),  # above the YQ-C83 profile's stated range
     ("period", "-1", r"a period from 2.85714e-09 s to 1000 s"),
     ("period", "-9.9E37", "SCPI -infinity"),
     ("pulse_width", "0", "a pulse width above 0 s"),
@@ -153,7 +153,7 @@ def test_an_impossible_reading_is_a_fault_naming_counter_query_and_reply(functio
     with pytest.raises(ImpossibleReading, match=expected) as caught:
         c.read()
     message = caught.value.message
-    assert message.startswith(f"counter (Tessaly Instruments FC-3120 at TCPIP0::fake::inst0::INSTR): "
+    assert message.startswith(f"counter (Tessaly Instruments YQ-C83 at TCPIP0::fake::inst0::INSTR): "
                               f"{fetch[function]}: answered {reply!r}")
     assert (caught.value.role, caught.value.command) == ("counter", fetch[function])
     assert sent.count(fetch[function]) == 3  # asked again twice: a garbled reading may be a one-off

@@ -20,11 +20,11 @@ def shipped(name: str) -> Path:
 
 
 def test_the_four_demo_profiles_ship_and_cover_every_role() -> None:
-    assert shipped_profiles() == ["knobline-ka2", "tessaly-ds1104", "tessaly-fc3120", "tessaly-ps3005"]
+    assert shipped_profiles() == ["knobline-ka2", "tessaly-yqc83", "tessaly-yqp26", "tessaly-yqs47"]
     assert sorted(load_profile(n).role for n in shipped_profiles()) == sorted(ROLES)
 
 
-@pytest.mark.parametrize("name", ["knobline-ka2", "tessaly-ds1104", "tessaly-fc3120", "tessaly-ps3005"])
+@pytest.mark.parametrize("name", ["knobline-ka2", "tessaly-yqc83", "tessaly-yqp26", "tessaly-yqs47"])
 def test_shipped_profiles_define_every_required_command(name: str) -> None:
     profile = load_profile(name)
     required = {c for c, spec in commands_for(profile.role).items() if spec.required}
@@ -33,21 +33,21 @@ def test_shipped_profiles_define_every_required_command(name: str) -> None:
 
 def test_counter_profile_uses_scpi_1999_headers() -> None:
     # SCPI-1999 CONFigure:PERiod, SENSe:FREQuency:APERture, FETCh:<function>? (short forms; from memory).
-    p = load_profile("tessaly-fc3120")
+    p = load_profile("tessaly-yqc83")
     assert p.format("configure_period") == "CONF:PER"
     assert p.format("gate_time", gate_time_s=0.1) == "SENS:FREQ:APER 1.000000E-01"
     assert p.format("fetch_duty") == "FETC:DCYC?"
 
 
 def test_a_profile_may_be_loaded_by_path(tmp_path: Path) -> None:
-    path = edited_copy(shipped("tessaly-fc3120"), tmp_path, 'idn_model = "FC-3120"', 'idn_model = ["FC-3120", "FC-3122"]')
+    path = edited_copy(shipped("tessaly-yqc83"), tmp_path, 'idn_model = "YQ-C83"', 'idn_model = ["YQ-C83", "YQ-C84"]')
     profile = load_profile(path)
-    assert profile.idn_models == ("FC-3120", "FC-3122")
+    assert profile.idn_models == ("YQ-C83", "YQ-C84")
     assert profile.source == str(path)
 
 
 def test_unknown_profile_name_lists_the_shipped_ones() -> None:
-    with pytest.raises(UserInputError, match="tessaly-fc3120.*found 'tessaly-fc9999'"):
+    with pytest.raises(UserInputError, match="tessaly-yqc83.*found 'tessaly-fc9999'"):
         load_profile("tessaly-fc9999")
 
 
@@ -58,42 +58,42 @@ def test_missing_profile_file_is_a_file_format_error(tmp_path: Path) -> None:
 
 # One edit, one line: file, key, expected, found (the FileFormatError wording).
 @pytest.mark.parametrize("name, old, new, line", [
-    ("tessaly-fc3120", 'fetch_period = "FETC:PER?"\n', "",
+    ("tessaly-yqc83", 'fetch_period = "FETC:PER?"\n', "",
      "commands.fetch_period: expected the SCPI text of the query fetching a period reading, found nothing"),
-    ("tessaly-fc3120", "{gate_time_s:.6E}", "{gate_s:.6E}",
+    ("tessaly-yqc83", "{gate_time_s:.6E}", "{gate_s:.6E}",
      "commands.gate_time: expected a template using only {gate_time_s}, found {gate_s} in"),
-    ("tessaly-fc3120", "{gate_time_s:.6E}", "{gate_time_s:d}",
+    ("tessaly-yqc83", "{gate_time_s:.6E}", "{gate_time_s:d}",
      "commands.gate_time: expected a template whose fields format as {gate_time_s}, found"),
-    ("tessaly-fc3120", "{gate_time_s:.6E}", "{}",
+    ("tessaly-yqc83", "{gate_time_s:.6E}", "{}",
      "commands.gate_time: expected a template using only {gate_time_s}, found {} in"),
-    ("tessaly-fc3120", 'fetch_period = "FETC:PER?"', 'fetch_period = "FETC:PER"',
+    ("tessaly-yqc83", 'fetch_period = "FETC:PER?"', 'fetch_period = "FETC:PER"',
      "commands.fetch_period: expected a query (SCPI queries end their header with '?'), found 'FETC:PER'"),
-    ("tessaly-fc3120", 'initiate = "INIT"', 'initiate = "INIT?"',
+    ("tessaly-yqc83", 'initiate = "INIT"', 'initiate = "INIT?"',
      "commands.initiate: expected a command that is not a query (no '?'), found 'INIT?'"),
-    ("tessaly-fc3120", 'initiate = "INIT"', 'initiate = "INIT"\nfetch_everything = "FETC?"',
+    ("tessaly-yqc83", 'initiate = "INIT"', 'initiate = "INIT"\nfetch_everything = "FETC?"',
      "commands.fetch_everything: expected one of the keys"),
-    ("tessaly-fc3120", 'initiate = "INIT"', "initiate = 7", "commands.initiate: expected one line of SCPI text, found 7"),
-    ("tessaly-fc3120", 'role = "counter"', 'role = "multimeter"',
+    ("tessaly-yqc83", 'initiate = "INIT"', "initiate = 7", "commands.initiate: expected one line of SCPI text, found 7"),
+    ("tessaly-yqc83", 'role = "counter"', 'role = "multimeter"',
      "identity.role: expected one of counter, scope, supply, actuator, found 'multimeter'"),
-    ("tessaly-fc3120", 'idn_model = "FC-3120"', "idn_model = []",
+    ("tessaly-yqc83", 'idn_model = "YQ-C83"', "idn_model = []",
      "identity.idn_model: expected the model *IDN? names, or a list of them, found []"),
-    ("tessaly-fc3120", 'duty = "percent"', 'duty = "fraction"',
+    ("tessaly-yqc83", 'duty = "percent"', 'duty = "fraction"',
      "units.duty: expected one of percent, ratio, found 'fraction'"),
-    ("tessaly-fc3120", "fetch_margin_s = 1.0", "fetch_margin_s = -1.0",
+    ("tessaly-yqc83", "fetch_margin_s = 1.0", "fetch_margin_s = -1.0",
      "timing.fetch_margin_s: expected a positive number"),
-    ("tessaly-fc3120", 'rising = "POS"', 'rising = "POS ITIVE"',
+    ("tessaly-yqc83", 'rising = "POS"', 'rising = "POS ITIVE"',
      "tokens.rising: expected one word the instrument understands, found 'POS ITIVE'"),
-    ("tessaly-fc3120", "[units]", "max_deg = 3\n[units]", "limits.max_deg: expected one of the keys"),
-    ("tessaly-fc3120", "max_frequency_hz = 350.0e6", "max_frequency_hz = 1.0e-4",
+    ("tessaly-yqc83", "[units]", "max_deg = 3\n[units]", "limits.max_deg: expected one of the keys"),
+    ("tessaly-yqc83", "max_frequency_hz = 350.0e6", "max_frequency_hz = 1.0e-4",
      "limits.max_frequency_hz: expected a frequency above limits.min_frequency_hz, found 0.0001"),
-    ("tessaly-fc3120", "min_frequency_hz = 1.0e-3", "min_frequency_hz = 0",
+    ("tessaly-yqc83", "min_frequency_hz = 1.0e-3", "min_frequency_hz = 0",
      "limits.min_frequency_hz: expected a positive number"),
     ("knobline-ka2", "min_deg = 0.0", "", "limits.min_deg: expected the lowest shaft angle"),
     ("knobline-ka2", "travel_deg = 270.0", "travel_deg = 270.0\nzero = 1",
      "fixture.zero: expected one of the keys zero_deg, travel_deg, found an unknown key"),
-    ("tessaly-ds1104", '"x_increment_s", ', "",
+    ("tessaly-yqs47", '"x_increment_s", ', "",
      "data.preamble_fields: expected a list naming at least x_increment_s and y_multiplier_v"),
-    ("tessaly-ds1104", '"x_zero_s"', '"x_zero"', "data.preamble_fields: expected a list of points"),
+    ("tessaly-yqs47", '"x_zero_s"', '"x_zero"', "data.preamble_fields: expected a list of points"),
 ])
 def test_a_bad_profile_gives_one_clear_line(tmp_path: Path, name: str, old: str, new: str, line: str) -> None:
     path = edited_copy(shipped(name), tmp_path, old, new)
@@ -102,7 +102,7 @@ def test_a_bad_profile_gives_one_clear_line(tmp_path: Path, name: str, old: str,
 
 
 def test_every_problem_in_a_profile_is_listed_at_once(tmp_path: Path) -> None:
-    path = edited_copy(shipped("tessaly-fc3120"), tmp_path, 'initiate = "INIT"', 'initiate = "INIT?"')
+    path = edited_copy(shipped("tessaly-yqc83"), tmp_path, 'initiate = "INIT"', 'initiate = "INIT?"')
     path.write_text(path.read_text(encoding="utf-8").replace('duty = "percent"', 'duty = "x"'), encoding="utf-8")
     with pytest.raises(UserInputError) as info:
         load_profile(path)
@@ -110,6 +110,6 @@ def test_every_problem_in_a_profile_is_listed_at_once(tmp_path: Path) -> None:
 
 
 def test_a_driver_refuses_a_profile_for_another_role() -> None:
-    session, _ = scripted_session("tessaly-ds1104", FakeInstrument())
-    with pytest.raises(UserInputError, match="profile tessaly-ds1104 is for a scope; the counter needs"):
+    session, _ = scripted_session("tessaly-yqs47", FakeInstrument())
+    with pytest.raises(UserInputError, match="profile tessaly-yqs47 is for a scope; the counter needs"):
         Counter(session)

@@ -88,11 +88,11 @@ def test_malformed_error_entries_are_unparsable(reply: str) -> None:
 
 def test_idn_has_four_fields() -> None:
     # IEEE 488.2 §10.14: manufacturer, model, serial number, firmware level (from memory).
-    ident = Identity.parse("TESSALY INSTRUMENTS,FC-3120,TS26A0117,1.4.2\n")
-    assert ident == Identity("TESSALY INSTRUMENTS", "FC-3120", "TS26A0117", "1.4.2")
+    ident = Identity.parse("TESSALY INSTRUMENTS,YQ-C83,TS26A0117,1.4.2\n")
+    assert ident == Identity("TESSALY INSTRUMENTS", "YQ-C83", "TS26A0117", "1.4.2")
 
 
-@pytest.mark.parametrize("reply", ["TESSALY,FC-3120", "A,B,C,D,E", ",B,C,D", ""])
+@pytest.mark.parametrize("reply", ["TESSALY,YQ-C83", "A,B,C,D,E", ",B,C,D", ""])
 def test_idn_without_four_fields_is_unparsable(reply: str) -> None:
     with pytest.raises(UnparsableReply):
         Identity.parse(reply)

@@ -24,11 +24,10 @@ from fixture.instruments.ieee4882 import build_block
 
 from .fakes import FakeInstrument
 
-PROFILES = {name: load_profile(name) for name in ("tessaly-fc3120", "tessaly-ps3005", "knobline-ka2",
-                                                   "tessaly-ds1104")}
+PROFILES = {name: load_profile(name) for name in ("tessaly-yqc83", "tessaly-yqp26", "knobline-ka2", "tessaly-yqs47")}
 SENTINELS = ["9.91E37", "9.9E37", "-9.9E37", "+9.91E+37", "1E999", "-1E999", "-1E300", "1E-400", "NAN", "nan", "INF",
              "-inf", "0", "-0", "+0.0", "-1", "", " ", "1_000", "0x10", "1e3 Hz", "+1.000000000000E+03",
-             "TESSALY INSTRUMENTS,FC-3120,T1,1.0", '+0,"No error"', "1,2", "\u00e9", "1.5E", "."]
+             "TESSALY INSTRUMENTS,YQ-C83,T1,1.0", '+0,"No error"', "1,2", "\u00e9", "1.5E", "."]
 
 
 def numbers() -> st.SearchStrategy[str]:
@@ -60,14 +59,14 @@ def assert_named_fault(exc: BaseException, role: str) -> None:
 @given(function=st.sampled_from(["frequency", "period", "pulse_width", "duty"]), reply=REPLIES)
 def test_a_counter_reading_is_possible_or_a_named_fault(function: str, reply: str) -> None:
     query = {"frequency": "FETC:FREQ?", "period": "FETC:PER?", "pulse_width": "FETC:PWID?", "duty": "FETC:DCYC?"}
-    counter = Counter(session("tessaly-fc3120", {query[function]: reply}))
+    counter = Counter(session("tessaly-yqc83", {query[function]: reply}))
     counter.configure(CounterSettings(function=function, gate_time_s=0.1))
     try:
         value = counter.read()
     except Exception as exc:  # noqa: BLE001 - the property is about every exception
         assert_named_fault(exc, "counter")
         return
-    low_hz, high_hz = 1.0e-3, 350.0e6  # the FC-3120 profile's stated range (its fictional datasheet)
+    low_hz, high_hz = 1.0e-3, 350.0e6  # the YQ-C83 profile's stated range (its fictional datasheet)
     assert math.isfinite(value)
     if function == "frequency":
         assert low_hz <= value <= high_hz
@@ -82,14 +81,14 @@ def test_a_counter_reading_is_possible_or_a_named_fault(function: str, reply: st
 @SAMPLE_EXAMPLES
 @given(reply=REPLIES)
 def test_a_supply_current_is_possible_or_a_named_fault_and_never_an_overflow(reply: str) -> None:
-    supply = Supply(session("tessaly-ps3005", {"MEAS:CURR?": reply}))
+    supply = Supply(session("tessaly-yqp26", {"MEAS:CURR?": reply}))
     try:
         value = supply.measure_current()
     except Exception as exc:  # noqa: BLE001
         assert_named_fault(exc, "supply")
         assert not isinstance(exc, OverflowReading)
         return
-    assert math.isfinite(value) and -0.05 <= value <= 5.25  # PS-3005: 5 A rated, 1 % below / 5 % above
+    assert math.isfinite(value) and -0.05 <= value <= 5.25  # YQ-P26: 5 A rated, 1 % below / 5 % above
 
 
 @SAMPLE_EXAMPLES
@@ -120,7 +119,7 @@ def assert_usable_record(record, settings_: ScopeSettings) -> None:
                       st.lists(st.one_of(numbers(), st.sampled_from(SENTINELS)), max_size=12).map(",".join),
                       st.lists(st.floats(-4, 4), max_size=12).map(lambda v: ",".join(f"{x:.4f}" for x in v))))
 def test_an_ascii_scope_record_is_usable_or_a_named_fault(text: str) -> None:
-    scope = Scope(session("tessaly-ds1104", {**SCOPE_BASE, "TRAC:DATA? CH1": text}))
+    scope = Scope(session("tessaly-yqs47", {**SCOPE_BASE, "TRAC:DATA? CH1": text}))
     wanted = ScopeSettings(**SCOPE)
     scope.configure(wanted)
     try:
@@ -141,7 +140,7 @@ def test_an_ascii_scope_record_is_usable_or_a_named_fault(text: str) -> None:
        framed=st.booleans())
 def test_a_binary_scope_record_is_usable_or_a_named_fault(payload: bytes, preamble: str, framed: bool) -> None:
     block = build_block(payload) if framed else payload
-    scope = Scope(session("tessaly-ds1104", {**SCOPE_BASE, "TRAC:PRE? CH1": preamble, "TRAC:DATA? CH1": block}))
+    scope = Scope(session("tessaly-yqs47", {**SCOPE_BASE, "TRAC:PRE? CH1": preamble, "TRAC:DATA? CH1": block}))
     wanted = ScopeSettings(**SCOPE, encoding="float32")
     scope.configure(wanted)
     try:

@@ -10,7 +10,7 @@ from fixture.instruments import Scope, ScopeSettings
 
 from .fakes import FakeInstrument, scripted_session
 
-PROFILE = "tessaly-ds1104"
+PROFILE = "tessaly-yqs47"
 SETTINGS = dict(sample_rate_hz=1e6, record_length=4, range_v=8.0, t0_s=-1e-6)
 
 

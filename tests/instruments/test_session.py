@@ -20,7 +20,7 @@ from fixture.instruments.session import MAX_ERROR_READS
 
 from .fakes import IDN, FakeInstrument, scripted_session, sequence
 
-COUNTER = "tessaly-fc3120"
+COUNTER = "tessaly-yqc83"
 
 
 def test_flaky_idempotent_query_succeeds_on_retry_within_the_bound() -> None:
@@ -51,7 +51,7 @@ def test_retries_can_be_switched_off() -> None:
 def test_garbled_reply_to_an_idempotent_query_is_retried() -> None:
     fake = FakeInstrument({"*IDN?": sequence("TESSALY INSTRU", IDN[COUNTER])})
     session, transport = scripted_session(COUNTER, fake)
-    assert session.identify().model == "FC-3120"
+    assert session.identify().model == "YQ-C83"
     assert transport.sent == ["*IDN?", "*IDN?"]
 
 
@@ -86,7 +86,7 @@ def test_lost_connection_is_not_retried() -> None:
         raise ConnectionLost("TCPIP0::fake::inst0::INSTR: connection lost")
 
     session, transport = scripted_session(COUNTER, handler)
-    with pytest.raises(ConnectionLost, match=r"counter \(Tessaly Instruments FC-3120 at TCPIP0::fake::inst0::INSTR\): "
+    with pytest.raises(ConnectionLost, match=r"counter \(Tessaly Instruments YQ-C83 at TCPIP0::fake::inst0::INSTR\): "
                                              r"FETC:PER\?: connection lost") as caught:
         session.query_float("fetch_period")
     assert (caught.value.role, caught.value.command) == ("counter", "FETC:PER?")
@@ -96,7 +96,7 @@ def test_lost_connection_is_not_retried() -> None:
 def test_unparsable_reply_names_instrument_and_command() -> None:
     fake = FakeInstrument({"FETC:PER?": "1.0E-03 s"})
     session, _ = scripted_session(COUNTER, fake, max_retries=0)
-    with pytest.raises(UnparsableReply, match=r"counter \(Tessaly Instruments FC-3120 at TCPIP0::fake::inst0::INSTR\): "
+    with pytest.raises(UnparsableReply, match=r"counter \(Tessaly Instruments YQ-C83 at TCPIP0::fake::inst0::INSTR\): "
                                               r"FETC:PER\?: expected a number"):
         session.query_float("fetch_period")
 
@@ -128,17 +128,17 @@ def test_an_error_queue_that_never_empties_is_read_a_bounded_number_of_times() -
 
 
 def test_identify_accepts_the_profiles_instrument_in_any_case() -> None:
-    fake = FakeInstrument({"*IDN?": "Tessaly Instruments,fc-3120,TS26A0117,1.4.2"})
+    fake = FakeInstrument({"*IDN?": "Tessaly Instruments,yq-c83,TS26A0117,1.4.2"})
     session, _ = scripted_session(COUNTER, fake)
     ident = session.identify()
     assert (ident.serial, ident.firmware) == ("TS26A0117", "1.4.2")
     assert session.identity == ident
 
 
-@pytest.mark.parametrize("idn", ["TESSALY INSTRUMENTS,DS-1104,S1,1.0", "OTHER MAKER,FC-3120,S1,1.0"])
+@pytest.mark.parametrize("idn", ["TESSALY INSTRUMENTS,YQ-S47,S1,1.0", "OTHER MAKER,YQ-C83,S1,1.0"])
 def test_identify_refuses_another_instrument(idn: str) -> None:
     session, _ = scripted_session(COUNTER, FakeInstrument({"*IDN?": idn}))
-    with pytest.raises(WrongInstrument, match="expected TESSALY INSTRUMENTS FC-3120"):
+    with pytest.raises(WrongInstrument, match="expected TESSALY INSTRUMENTS YQ-C83"):
         session.identify()
 
 
@@ -223,7 +223,7 @@ def test_no_raw_transport_exception_leaves_a_session(exc: BaseException, fault: 
         with pytest.raises(fault) as caught:
             call()
         assert caught.value.role == "counter" and caught.value.command in ("FETC:FREQ?", "INIT")
-        assert caught.value.message.startswith("counter (Tessaly Instruments FC-3120 at TCPIP0::raw::inst0::INSTR)")
+        assert caught.value.message.startswith("counter (Tessaly Instruments YQ-C83 at TCPIP0::raw::inst0::INSTR)")
         assert type(exc).__name__ in caught.value.message
 
 

@@ -34,7 +34,7 @@ from fixture.sim.devices import RESOURCES, device_file
 from .fakes import IDN, FakeInstrument
 from .test_actuator import FakeKA2
 
-PROFILES = {"counter": "tessaly-fc3120", "scope": "tessaly-ds1104", "supply": "tessaly-ps3005",
+PROFILES = {"counter": "tessaly-yqc83", "scope": "tessaly-yqs47", "supply": "tessaly-yqp26",
             "actuator": "knobline-ka2"}
 FAST_S = 0.2   # a missing reply in the device file should fail the test quickly
 
@@ -230,7 +230,7 @@ def test_closing_one_transport_leaves_another_on_the_same_backend_working(backen
     first = VisaTransport(RESOURCES["counter"], backend)
     with VisaTransport(RESOURCES["supply"], backend, timeout_s=FAST_S) as second:
         first.close()
-        assert second.query("*IDN?").startswith("TESSALY INSTRUMENTS,PS-3005")
+        assert second.query("*IDN?").startswith("TESSALY INSTRUMENTS,YQ-P26")
 
 
 BLOCK_DEVICE = r'''spec: "1.1"

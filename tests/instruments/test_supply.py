@@ -9,7 +9,7 @@ from fixture.instruments import Supply
 
 from .fakes import FakeInstrument, scripted_session
 
-PROFILE = "tessaly-ps3005"
+PROFILE = "tessaly-yqp26"
 
 
 def supply(replies=None) -> tuple[Supply, list[str]]:

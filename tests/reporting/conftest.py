@@ -55,10 +55,10 @@ def db_url(tmp_path: Path) -> str:
         store.record_design("PW-22", "C", "demo-panel.toml", DESIGN_SHA, DESIGN_TEXT)
         store.record_sequence("final test", "demo-sequence.toml", SEQUENCE_SHA)
         store.record_station("line-1", "hall 2", hashlib.sha256(b"a station").hexdigest(), "demo-station.toml")
-        counter = store.record_instrument("counter", "Tessaly Instruments", "FC-3120", "T31-0042", "1.04",
+        counter = store.record_instrument("counter", "Tessaly Instruments", "YQ-C83", "T31-0042", "1.04",
                                           calibration_certificate="CAL-26-0117",
                                           calibration_due=dt.date(2027, 1, 31), calibration_lab="in-house")
-        supply = store.record_instrument("supply", "Tessaly Instruments", "PS-3005", "P35-0007", "2.1",
+        supply = store.record_instrument("supply", "Tessaly Instruments", "YQ-P26", "P35-0007", "2.1",
                                          calibration_certificate="CAL-26-0201", calibration_due=dt.date(2027, 2, 28))
 
         first = store.begin_run("PW22-000001", {"c_integrator": "C1-2611A"}, "line-1", "ana", "0.1.0",

@@ -102,7 +102,7 @@ def test_html_states_verdict_serial_instruments_limits_rule_and_safety_caution(d
     assert files.html.name == f"{files.number}.html"
     # 3.1234567 ms with U = 2.0 µs prints to U's last place, 0.1 µs (JCGM 100 7.2.6); duty 0.9312 with
     # U = 0.0010 (0.10 %) prints 93.12 %.
-    for expected in ("FAIL", "PW22-000001", "PW-22", "FC-3120", "T31-0042", "CAL-26-0117", "2027-01-31",
+    for expected in ("FAIL", "PW22-000001", "PW-22", "YQ-C83", "T31-0042", "CAL-26-0117", "2027-01-31",
                      "guarded acceptance, w = 1 x U", SAFETY_CAUTION, files.seal.record_sha256,
                      files.seal.fingerprint, f"station-key-{files.seal.fingerprint[:16]}.crt.pem beside this file", "3.1235 ms", "93.12 %", "(k = 2)"):
         assert expected in html, expected

@@ -18,7 +18,7 @@ def test_demo_station_opens_every_role_and_identifies_it() -> None:
     config = load_station("sequences/demo-station.toml")
     with open_station(config, today=TODAY) as station:
         assert set(station.drivers) == {"counter", "scope", "supply", "actuator"}
-        assert station.identities["counter"].model == "FC-3120"
+        assert station.identities["counter"].model == "YQ-C83"
         assert station.simulated
         assert station.expired_calibrations == []
 

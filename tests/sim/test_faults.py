@@ -44,12 +44,12 @@ def counter_readings():
 def make(role: str):
     """(driver, take_a_reading, is_true_value, command texts the fault targets)."""
     if role == "counter":
-        session, _ = scripted_session("tessaly-fc3120", FakeInstrument({"FETC:FREQ?": counter_readings()}))
+        session, _ = scripted_session("tessaly-yqc83", FakeInstrument({"FETC:FREQ?": counter_readings()}))
         counter = Counter(session)
         counter.configure(CounterSettings(function="frequency", gate_time_s=0.1))
         return counter, counter.read, lambda v: 1000.0 <= v < 1000.01, {"FETC:FREQ?"}
     if role == "supply":
-        session, _ = scripted_session("tessaly-ps3005", FakeInstrument({"*IDN?": IDN["tessaly-ps3005"],
+        session, _ = scripted_session("tessaly-yqp26", FakeInstrument({"*IDN?": IDN["tessaly-yqp26"],
                                                                         "MEAS:CURR?": "6.500000E-03"}))
         supply = Supply(session)
         return supply, supply.measure_current, lambda v: v == 6.5e-3, {"MEAS:CURR?"}
@@ -156,7 +156,7 @@ def test_a_timeout_is_asked_again_then_named_with_the_attempts() -> None:
 
 
 def test_the_counter_refuses_a_reading_repeated_to_the_last_digit() -> None:
-    session, _ = scripted_session("tessaly-fc3120", FakeInstrument({"FETC:FREQ?": "+1.000000123456E+03"}))
+    session, _ = scripted_session("tessaly-yqc83", FakeInstrument({"FETC:FREQ?": "+1.000000123456E+03"}))
     counter = Counter(session)
     counter.configure(CounterSettings(function="frequency", gate_time_s=0.1))
     assert counter.read() == 1000.000123456
@@ -166,7 +166,7 @@ def test_the_counter_refuses_a_reading_repeated_to_the_last_digit() -> None:
 
 def test_a_coarse_reading_may_repeat() -> None:
     # Five digits can honestly repeat between gates; only 10+ digit repeats are called stale.
-    session, _ = scripted_session("tessaly-fc3120", FakeInstrument({"FETC:FREQ?": "1.0000E+03"}))
+    session, _ = scripted_session("tessaly-yqc83", FakeInstrument({"FETC:FREQ?": "1.0000E+03"}))
     counter = Counter(session)
     counter.configure(CounterSettings(function="frequency", gate_time_s=0.1))
     assert counter.read() == counter.read() == 1000.0
@@ -176,7 +176,7 @@ def test_only_the_targeted_queries_are_hit_and_removing_the_fault_restores_the_t
     supply, reading, _, _ = make("supply")
     inner = supply.session.transport
     faulty = install_fault(supply, FaultKind.GARBAGE)
-    assert supply.identify().model == "PS-3005"  # *IDN? is not a reading query: untouched
+    assert supply.identify().model == "YQ-P26"  # *IDN? is not a reading query: untouched
     assert faulty.hits == 0
     remove_fault(supply)
     assert supply.session.transport is inner and reading() == 6.5e-3
@@ -193,8 +193,8 @@ def test_a_wrong_query_reply_is_the_instruments_identity() -> None:
     counter, *_ = make("counter")
     faulty = install_fault(counter, FaultKind.WRONG_QUERY)
     assert isinstance(faulty, FaultyTransport)
-    assert faulty.query("FETC:FREQ?") == "TESSALY INSTRUMENTS,FC-3120,0,1.0"
-    assert re.fullmatch(r"TESSALY INSTRUMENTS,FC-3120,\w+,[\d.]+", IDN["tessaly-fc3120"])
+    assert faulty.query("FETC:FREQ?") == "TESSALY INSTRUMENTS,YQ-C83,0,1.0"
+    assert re.fullmatch(r"TESSALY INSTRUMENTS,YQ-C83,\w+,[\d.]+", IDN["tessaly-yqc83"])
 
 
 @pytest.mark.parametrize("exc", [

@@ -29,7 +29,7 @@ READINGS = [
 
 def test_a_run_reads_back_as_recorded(store: Store) -> None:
     run_id = begin(store, lots={"c_integrator": "L-C1", "knob_a_pot": "L-P7"}, started_at=T0,
-                   expired_calibrations=["scope DS-1104: certificate X was due 2026-01-01"])
+                   expired_calibrations=["scope YQ-S47: certificate X was due 2026-01-01"])
     store.record_step(run_id, 0, "power up", "pass", T0, T0 + dt.timedelta(seconds=1), "", READINGS[2:])
     store.record_step(run_id, 1, "knob stops", "fail", T0 + dt.timedelta(seconds=1),
                       T0 + dt.timedelta(seconds=5), "duty high at B 75 %", READINGS[:2])
@@ -43,7 +43,7 @@ def test_a_run_reads_back_as_recorded(store: Store) -> None:
     (run,) = history.runs
     assert run.summary.verdict == "fail"
     assert run.summary.started_at == T0 and run.summary.ended_at == T0 + dt.timedelta(seconds=6)
-    assert run.summary.expired_calibrations == ("scope DS-1104: certificate X was due 2026-01-01",)
+    assert run.summary.expired_calibrations == ("scope YQ-S47: certificate X was due 2026-01-01",)
     assert (run.summary.sequence_sha256, run.summary.design_sha256) == (SEQUENCE_SHA, DESIGN_SHA)
     assert [s.name for s in run.steps] == ["power up", "knob stops"]
     assert run.steps[1].message == "duty high at B 75 %"
@@ -172,10 +172,10 @@ def test_runs_lists_newest_first_within_the_limit(store: Store) -> None:
 
 
 def test_a_run_remembers_its_instruments_calibration(store: Store) -> None:
-    counter = store.record_instrument("counter", "Tessaly Instruments", "FC-3120", "SN-41", "2.1",
-                                      "tessaly-fc3120", "TCPIP::sim", calibration_certificate="CAL-1",
+    counter = store.record_instrument("counter", "Tessaly Instruments", "YQ-C83", "SN-41", "2.1",
+                                      "tessaly-yqc83", "TCPIP::sim", calibration_certificate="CAL-1",
                                       calibration_due=dt.date(2026, 1, 1), calibration_lab="lab")
-    assert store.record_instrument("counter", "Tessaly Instruments", "FC-3120", "SN-41", "2.2",
+    assert store.record_instrument("counter", "Tessaly Instruments", "YQ-C83", "SN-41", "2.2",
                                    calibration_certificate="CAL-2", calibration_due=dt.date(2027, 1, 1)) == counter
     run_id = begin(store, instruments=[counter])
     (use,) = store.run(run_id).instruments
