@@ -1,0 +1,49 @@
+"""``knobline check`` takes a design, station or sequence file, and answers in JSON on a problem too."""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+from click.testing import CliRunner
+
+from fixture.cli import main
+from tests.json_keys import all_keys, documented_json_keys
+
+ROOT = Path(__file__).resolve().parents[2]
+
+
+def run(*args: str):
+    return CliRunner().invoke(main, ["check", *args], catch_exceptions=False)
+
+
+def test_a_station_file_given_as_the_file_is_checked_as_a_station() -> None:
+    result = run(str(ROOT / "sequences" / "demo-station.toml"), "--json")
+    assert result.exit_code == 0, result.stderr
+    data = json.loads(result.stdout)
+    assert data["ok"] and data["station"]["roles"] and "parts" not in data
+
+
+def test_a_sequence_file_given_as_the_file_is_checked_with_its_design() -> None:
+    result = run(str(ROOT / "sequences" / "demo-sequence.toml"), "--json")
+    assert result.exit_code == 0, result.stderr
+    data = json.loads(result.stdout)
+    assert data["ok"] and data["sequence"]["design"].endswith("demo-panel.toml")
+
+
+def test_problems_are_json_with_file_key_expected_found_and_exit_2(tmp_path: Path) -> None:
+    bad = tmp_path / "bad.toml"
+    bad.write_text('[product]\nname = 1\n', encoding="utf-8")
+    result = run(str(bad), "--json")
+    assert result.exit_code == 2
+    data = json.loads(result.stdout)
+    assert data["ok"] is False
+    first = data["problems"][0]
+    assert (first["file"], first["key"], first["expected"]) == (str(bad), "product.name", "a non-empty string")
+    assert first["message"].startswith(f"{bad}: product.name: expected")
+    # every key the help documents, and no other, appears across a good and a bad answer
+    good = json.loads(run(str(ROOT / "sequences" / "demo-panel.toml"), "--station", "demo-station",
+                          "--sequence", "demo-sequence", "--json").stdout)
+    documented = documented_json_keys(run("--help").stdout)
+    knobs = set(good["stops"])  # stops is keyed by knob name (a, b), data rather than keys
+    assert (all_keys(good) | all_keys(data)) - knobs == documented
