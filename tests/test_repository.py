@@ -33,6 +33,13 @@ def test_ci_runs_the_readme_test_command_verbatim() -> None:
     assert quick_start_lines()[1] in [ln.strip() for ln in ci]
 
 
+def test_ci_type_checks_the_package_before_the_tests() -> None:
+    # DEVELOPERS.md promises CI runs mypy on fixture/ (pyproject [tool.mypy]) before the suite.
+    ci = [ln.strip() for ln in (ROOT / ".ci" / "run").read_text(encoding="utf-8").splitlines()]
+    mypy = [i for i, ln in enumerate(ci) if not ln.startswith("#") and "python -m mypy" in ln]
+    assert mypy and mypy[0] < ci.index(quick_start_lines()[1])
+
+
 def test_readme_states_the_safety_caution() -> None:
     readme = (ROOT / "README.md").read_text(encoding="utf-8")
     assert "does not verify electrical safety or isolation" in readme
