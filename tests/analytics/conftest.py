@@ -8,8 +8,11 @@ from collections.abc import Iterator, Mapping, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
 
+import numpy as np
 import pytest
 
+from fixture.analytics.diagnosis import Reading
+from fixture.sim.readings import counter_reading
 from fixture.store import MeasurementRecord, Store, open_store
 
 # Hashes of made-up file contents; the store only needs them to be distinct.
@@ -67,3 +70,15 @@ def frequency(value_hz: float, knob_a_pct: float = 50.0, verdict: str = "pass") 
     return MeasurementRecord(f"counter {knob_a_pct:g}", "frequency_hz", value_hz, "Hz", verdict,
                              knob_a_pct=knob_a_pct, knob_b_pct=50.0, tolerance_low=900.0, tolerance_high=1100.0,
                              acceptance_low=905.0, acceptance_high=1095.0)
+
+
+def counter_readings(unit, design, rng: np.random.Generator) -> list[Reading]:
+    """What the demo sequence reads of a simulated unit through the simulated counter (100 ms gate,
+    100 ps resolution): frequency at every knob A stop (B held), duty at every knob B stop (A held),
+    as bench/lot_error_rates.py reads them."""
+    a, b = design.knobs["a"], design.knobs["b"]
+    out = [Reading(s, b.hold_pct, "frequency_hz", counter_reading(unit.wave(s, b.hold_pct), "frequency", 0.1,
+                                                                  100e-12, rng)) for s in a.stops_pct]
+    out += [Reading(a.hold_pct, s, "duty_pct", counter_reading(unit.wave(a.hold_pct, s), "duty", 0.1, 100e-12, rng))
+            for s in b.stops_pct]
+    return out

@@ -15,14 +15,13 @@ import pytest
 import scipy.linalg
 from scipy.stats import norm
 
-from fixture.analytics.diagnosis import Reading
 from fixture.analytics.lot_attribution import LotUnit, _normal_equations, _Units, attribute_lots
 from fixture.analytics.lot_selection import bonferroni_z
 from fixture.errors import UserInputError
 from fixture.files.design_file import load_design
 from fixture.sim.batch import plan_batch
-from fixture.sim.dut import Defect, SimulatedUnit, build_unit
-from fixture.sim.readings import counter_reading
+from fixture.sim.dut import Defect, build_unit
+from tests.analytics.conftest import counter_readings
 
 ROOT = Path(__file__).resolve().parents[2]
 
@@ -32,16 +31,6 @@ def design():
     return load_design(ROOT / "sequences" / "demo-panel.toml")
 
 
-def readings_of(design, unit: SimulatedUnit, rng: np.random.Generator) -> list[Reading]:
-    """Frequency at each knob A stop (B held), duty at each knob B stop (A held), through the simulated counter."""
-    a, b = design.knobs["a"], design.knobs["b"]
-    out = [Reading(s, b.hold_pct, "frequency_hz", counter_reading(unit.wave(s, b.hold_pct), "frequency", 0.1,
-                                                                   100e-12, rng)) for s in a.stops_pct]
-    out += [Reading(a.hold_pct, s, "duty_pct", counter_reading(unit.wave(a.hold_pct, s), "duty", 0.1, 100e-12, rng))
-            for s in b.stops_pct]
-    return out
-
-
 def batch_of(design, lots: list[dict[str, str]], shifts: dict[str, float], seed: int,
              defects: dict[int, Defect] | None = None) -> list[LotUnit]:
     rng = np.random.default_rng(seed)
@@ -49,7 +38,7 @@ def batch_of(design, lots: list[dict[str, str]], shifts: dict[str, float], seed:
     for i, unit_lots in enumerate(lots):
         unit = build_unit(design, f"U{i:03d}", seed=seed, lots=unit_lots, lot_shifts=shifts,
                           defects=[defects[i]] if defects and i in defects else [])
-        out.append(LotUnit(unit.serial, readings_of(design, unit, rng), unit_lots))
+        out.append(LotUnit(unit.serial, counter_readings(unit, design, rng), unit_lots))
     return out
 
 
@@ -89,7 +78,7 @@ def test_a_planted_capacitor_lot_is_the_one_finding_and_its_interval_holds_the_s
     plan = plan_batch(design, units=36, seed=11, shifted_part="c_integrator", shift=-0.08, defect_fraction=0.0)
     part, lot, shift = plan.shifted
     rng = np.random.default_rng(11)
-    units = [LotUnit(p.serial, readings_of(design, plan.build(design, p), rng), dict(p.lots)) for p in plan.units]
+    units = [LotUnit(p.serial, counter_readings(plan.build(design, p), design, rng), dict(p.lots)) for p in plan.units]
     result = attribute_lots(design, units)
     assert [f.lots for f in result.findings] == [(lot,)]
     finding = result.findings[0]

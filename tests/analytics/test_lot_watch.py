@@ -23,10 +23,9 @@ from fixture.analytics.lot_watch_run import state_of, step_run, watch_run
 from fixture.files.design_file import load_design
 from fixture.model.design import ProductDesign
 from fixture.sim.batch import BatchPlan, plan_batch
-from fixture.sim.readings import counter_reading
 from fixture.store import MeasurementRecord, Store
 from fixture.store.lot_watch import ChartMoved, chart_states, record_lot_watch, run_lot_watch
-from tests.analytics.conftest import Run, record_unit
+from tests.analytics.conftest import Run, counter_readings, record_unit
 
 
 @pytest.fixture(scope="module")
@@ -34,21 +33,11 @@ def design() -> ProductDesign:
     return load_design(data_dir("sequences") / "demo-panel.toml")
 
 
-def readings(unit, design: ProductDesign, rng: np.random.Generator) -> list[Reading]:
-    """Frequency at every knob A stop, duty at every knob B stop (as bench/lot_error_rates.py reads them)."""
-    a, b = design.knobs["a"], design.knobs["b"]
-    out = [Reading(s, b.hold_pct, "frequency_hz", counter_reading(unit.wave(s, b.hold_pct), "frequency", 0.1,
-                                                                  100e-12, rng)) for s in a.stops_pct]
-    out += [Reading(a.hold_pct, s, "duty_pct", counter_reading(unit.wave(a.hold_pct, s), "duty", 0.1, 100e-12, rng))
-            for s in b.stops_pct]
-    return out
-
-
 def production(design: ProductDesign, plan: BatchPlan, seed: int) -> Iterator[tuple]:
     """Each planned unit with its readings, in production order."""
     rng = np.random.default_rng(seed)
     for planned in plan.units:
-        yield planned, readings(plan.build(design, planned), design, rng)
+        yield planned, counter_readings(plan.build(design, planned), design, rng)
 
 
 def run_line(design: ProductDesign, plan: BatchPlan, seed: int):
