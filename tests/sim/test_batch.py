@@ -11,7 +11,7 @@ import pytest
 from fixture.errors import UserInputError
 from fixture.files.design_file import load_design
 from fixture.files.sequence_file import load_sequence
-from fixture.sim.batch import DEFAULT_LOTTED_PARTS, defect_count, plan_batch
+from fixture.sim.batch import DEFAULT_LOTTED_PARTS, defect_count, lotted_parts, plan_batch
 from fixture.sim.dut import DEFECT_KINDS
 
 
@@ -143,3 +143,68 @@ def test_impossible_plans_are_refused_with_a_user_error(design, kwargs) -> None:
     args = {"units": 10, "seed": 1, **kwargs}
     with pytest.raises(UserInputError):
         plan_batch(design, **args)
+
+
+#: A design of another signal model (the 555 plug-in of tests/model): none of the demo panel's part keys.
+TIMER_555 = """
+[product]
+name = "555 rehearsal panel"
+model = "tests.model.plugin_555:Timer555Model"
+
+[parts.r1]
+ref = "R11"
+value = "1k"
+tolerance = "1%"
+
+[parts.r2]
+ref = "R12"
+value = "4k7"
+tolerance = "1%"
+
+[parts.c_timing]
+ref = "C4"
+value = "100n"
+tolerance = "5%"
+
+[parts.supply_v]
+ref = "U3 (regulator)"
+value = "9 V"
+tolerance = "2%"
+
+[knobs.a]
+ref = "RV1"
+resistance = "10k"
+tolerance = "20%"
+end_resistance = "20"
+stops = [0, 50, 100]
+
+[knobs.b]
+ref = "RV2"
+resistance = "5k"
+tolerance = "20%"
+end_resistance = "20"
+stops = [0, 50, 100]
+"""
+
+
+def test_a_design_of_another_model_gets_lots_for_its_own_resistors_capacitor_and_pots(tmp_path) -> None:
+    path = tmp_path / "timer.toml"
+    path.write_text(TIMER_555, encoding="utf-8")
+    timer = load_design(path)
+    assert lotted_parts(timer) == ("r1", "r2", "c_timing", "knob_a_pot", "knob_b_pot")  # the regulator has no reel
+    plan = plan_batch(timer, units=40, seed=3)
+    assert plan.shifted[0] == "c_timing", "the capacitor's lot is planted by default, as C1's is in the demo"
+    assert {code.split("-")[0] for codes in plan.lots.values() for code in codes} == {"R11", "R12", "C4", "RV1", "RV2"}
+    wrong = [d for u in plan.defective() for d in u.defects if d.kind == "wrong-part"]
+    assert wrong and all(d.part in lotted_parts(timer) for d in wrong)
+
+
+def test_the_demo_panel_keeps_its_lotted_parts(design) -> None:
+    assert lotted_parts(design) == DEFAULT_LOTTED_PARTS
+
+
+def test_serials_given_by_the_caller_are_the_units_serials_and_must_be_distinct(design) -> None:
+    plan = plan_batch(design, units=3, seed=1, serials=["AB-0004", "AB-0005", "AB-0006"])
+    assert [u.serial for u in plan.units] == ["AB-0004", "AB-0005", "AB-0006"] and plan.serial_prefix == "AB-000"
+    with pytest.raises(UserInputError, match="3 distinct serials, found 2"):
+        plan_batch(design, units=3, seed=1, serials=["AB-0004", "AB-0004", "AB-0006"])
