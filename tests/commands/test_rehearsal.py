@@ -155,3 +155,29 @@ def test_the_shipped_demo_files_still_rehearse_as_they_are(tmp_path: Path) -> No
                       str(tmp_path / "out"), "--no-reports", "--json")
     assert result.exit_code == 0, result.stderr
     assert [r["serial"] for r in json.loads(result.stdout)["runs"]] == ["PW22-000001", "PW22-000002"]
+
+
+def test_a_design_of_another_signal_model_gets_serials_and_lots_of_its_own(tmp_path: Path) -> None:
+    from fixture.store import open_store
+    from tests.sim.test_batch import TIMER_555
+
+    (tmp_path / "timer.toml").write_text(TIMER_555, encoding="utf-8")
+    _edit(SEQUENCES / "demo-sequence.toml", tmp_path / "timer-sequence.toml",
+          [('design = "demo-panel.toml"', 'design = "timer.toml"'),
+           ('serial_pattern = "PW22-[0-9]{6}"', 'serial_pattern = "T5-[A-Z][0-9]{3}"')])
+    # the 555 model gives no output edge: the station names it (sequences/README.md, "edge_slew", "swing")
+    station = (SEQUENCES / "demo-station.toml").read_text(encoding="utf-8")
+    station = station[:station.index("[self_check]")].replace(
+        "[measurement]\n", '[measurement]\nedge_slew = "10 V/us"\nswing = "5 V"\n')
+    (tmp_path / "station.toml").write_text(station, encoding="utf-8")
+    result = knobline("demo", "--sequence", str(tmp_path / "timer-sequence.toml"), "--station",
+                      str(tmp_path / "station.toml"), "--units", "3", "--out", str(tmp_path / "out"),
+                      "--no-reports", "--json")
+    assert result.exit_code == 0, result.stderr
+    data = json.loads(result.stdout)
+    assert [r["serial"] for r in data["runs"]] == ["T5-A001", "T5-A002", "T5-A003"]
+    assert data["planted"][0]["part"] == "c_timing"  # the design's capacitor, C4
+    with open_store(str(tmp_path / "out" / "results.sqlite")) as store:
+        lots = store.unit("T5-A001").lots
+    assert set(lots) == {"r1", "r2", "c_timing", "knob_a_pot", "knob_b_pot"}
+    assert {lot.split("-")[0] for lot in lots.values()} == {"R11", "R12", "C4", "RV1", "RV2"}
