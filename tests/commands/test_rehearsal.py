@@ -181,3 +181,14 @@ def test_a_design_of_another_signal_model_gets_serials_and_lots_of_its_own(tmp_p
         lots = store.unit("T5-A001").lots
     assert set(lots) == {"r1", "r2", "c_timing", "knob_a_pot", "knob_b_pot"}
     assert {lot.split("-")[0] for lot in lots.values()} == {"R11", "R12", "C4", "RV1", "RV2"}
+
+
+@pytest.mark.parametrize("option", ["--sim-defect", "--sim-lot-shift"])
+def test_planting_text_that_is_not_printable_or_too_long_is_one_line(rehearsal: Path, option: str) -> None:
+    for value in ("stuck-output\x1b[2J", "C3:" + "9" * 200):
+        result = knobline("test", "ab7-sequence.toml", "--serial", "AB-0001", "--db", str(rehearsal / "r.sqlite"),
+                          option, value)
+        assert result.exit_code == 2
+        error = [ln for ln in result.stderr.splitlines() if ln.startswith("knobline: error: ")]
+        assert len(error) == 1 and error[0].startswith(f"knobline: error: {option}: expected ")
+        assert "\x1b" not in result.stderr
