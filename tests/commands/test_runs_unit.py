@@ -146,7 +146,7 @@ def test_unit_shows_lots_and_every_reading_with_its_limits_and_verdict(run, db_u
     assert first["decoder"] is None
     assert retest["decoder"]["scheme_a"] == "linear-in-period"
     assert retest["instruments"] == [{"role": "counter", "make": "Tessaly Instruments", "model": "YQ-C83",
-                                      "serial": "T31-0042", "firmware": "1.04", "certificate": "CAL-26-0117",
+                                      "serial": "T31-0042", "firmware": "1.04", "calibration_certificate": "CAL-26-0117",
                                       "calibration_due": "2027-01-31"}]
 
 
