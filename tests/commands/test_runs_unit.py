@@ -214,3 +214,16 @@ def test_runs_names_a_database_path_or_url_it_cannot_use_as_bad_input(db: str, t
     assert result.exit_code == 2, result.output
     last = result.stderr.strip().splitlines()[-1]
     assert last.startswith("knobline: error: database") and "internal error" not in result.stderr
+
+
+def test_unit_json_and_the_certificate_record_state_a_run_alike(run, db_url: str) -> None:
+    # One serialiser of run details: what `unit --json` says of a run's steps, readings, instruments and
+    # decoder is what the signed certificate record says (common practice, no source).
+    from fixture.reporting.certificate import build_record
+
+    unit = json.loads(run("unit", "PW22-000001", "--db", db_url, "--json").stdout)["runs"][1]
+    with open_store(db_url) as store:
+        record = build_record(store, unit["run_id"])
+    assert unit["steps"] == record["steps"] and unit["instruments"] == record["instruments"]
+    assert unit["decoder"] == record["decoder"] and unit["decoder"] is not None
+    assert record["instruments"][0]["calibration_certificate"] == "CAL-26-0117"
