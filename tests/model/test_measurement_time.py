@@ -15,7 +15,7 @@ from fixture.model.decision import tur
 from fixture.model.measurement_time import (
     DEFAULT_GATE_TIMES_S,
     counter_test_time_s,
-    scope_settings,
+    scope_timebases,
     scope_test_time_s,
     series_1_2_5,
     shortest_counter_gate,
@@ -90,7 +90,7 @@ def test_unreachable_target_is_reported_with_best_setting():
     ("high_time_s", 0.42 * PERIOD_S - 0.2e-6, 0.42 * PERIOD_S + 0.2e-6),
 ])
 def test_chosen_scope_record_is_shortest_that_meets_target(quantity, low, high):
-    candidates = scope_settings(1e6, 1000, 10_000_000)
+    candidates = scope_timebases(1e6, 1000, 10_000_000)
     choice = shortest_scope_record(quantity, FACTS, SCOPE, low, high, candidates=candidates, target_tur=4.0)
     good = []
     for settings in candidates:  # brute force, common practice
