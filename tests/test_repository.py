@@ -57,9 +57,43 @@ ALLOWED = {
     "instruments": {"fixture.instruments", "fixture.files", "fixture.model", "fixture.errors"},
     "sim": {"fixture.sim", "fixture.instruments", "fixture.files", "fixture.model", "fixture.errors"},
     "store": {"fixture.store", "fixture.model", "fixture.errors"},
-    "runner": {"fixture.runner", "fixture.store", "fixture.sim", "fixture.instruments", "fixture.files",
+    # never fixture.sim: the runner opens the same drivers on a real and a simulated bench
+    "runner": {"fixture.runner", "fixture.store", "fixture.instruments", "fixture.files",
                "fixture.model", "fixture.errors", "fixture._version"},
 }
+
+
+def imported_modules(path: Path, tree: ast.AST) -> list[str]:
+    """Every module a file imports, relative imports (``from ..sim import x``, ``from . import y``) made absolute.
+
+    ``from PKG import NAME`` counts as importing ``PKG.NAME`` too, since NAME may be a submodule
+    (Python reference, "The import system", 5.7 package relative imports; ``from fixture import sim`` alike).
+    """
+    parts = list(path.relative_to(ROOT).with_suffix("").parts)
+    package = parts[:-1]  # a module's package; for __init__.py that is the package itself
+    names: list[str] = []
+    for node in ast.walk(tree):
+        if isinstance(node, ast.Import):
+            names += [a.name for a in node.names]
+        elif isinstance(node, ast.ImportFrom):
+            if node.level == 0:
+                base = node.module or ""
+            else:
+                up = package[:len(package) - (node.level - 1)]
+                base = ".".join(up + ([node.module] if node.module else []))
+            names.append(base)
+            names += [f"{base}.{a.name}" for a in node.names if a.name != "*"]
+    return names
+
+
+def test_layering_reads_relative_imports_as_the_modules_they_name() -> None:
+    # Python reference, "The import system" 5.7: one dot is the module's own package, each more dot one up.
+    source = "from ..sim import world\nfrom . import plan\nfrom .readings import x\nfrom fixture import sim\n"
+    path = ROOT / "fixture" / "runner" / "spot.py"
+    names = imported_modules(path, ast.parse(source))
+    assert {"fixture.sim", "fixture.sim.world", "fixture.runner.plan", "fixture.runner.readings"} <= set(names)
+    init = ROOT / "fixture" / "runner" / "__init__.py"  # in a package's __init__, "." is the package itself
+    assert "fixture.runner.plan" in imported_modules(init, ast.parse("from . import plan\n"))
 
 
 @pytest.mark.parametrize("room", sorted(ALLOWED))
@@ -70,19 +104,12 @@ def test_rooms_import_only_downward(room: str) -> None:
         pytest.skip(f"fixture/{room} does not exist yet")
     for path in folder.rglob("*.py"):
         tree = ast.parse(path.read_text(encoding="utf-8"))
-        for node in ast.walk(tree):
-            names = []
-            if isinstance(node, ast.Import):
-                names = [a.name for a in node.names]
-            elif isinstance(node, ast.ImportFrom) and node.module and node.level == 0:
-                names = [node.module]
-            for name in names:
-                if name.startswith("fixture") and not any(name == a or name.startswith(a + ".")
-                                                          for a in ALLOWED[room]):
-                    offenders.append(f"{path.relative_to(ROOT)} imports {name}")
-                if room == "model" and name.split(".")[0] in {"scipy", "pyvisa", "sqlalchemy", "jinja2",
-                                                              "matplotlib", "click"}:
-                    offenders.append(f"{path.relative_to(ROOT)} imports {name} (model/ is numpy + stdlib)")
+        for name in imported_modules(path, tree):
+            if name.startswith("fixture.") and not any(name == a or name.startswith(a + ".") for a in ALLOWED[room]):
+                offenders.append(f"{path.relative_to(ROOT)} imports {name}")
+            if room == "model" and name.split(".")[0] in {"scipy", "pyvisa", "sqlalchemy", "jinja2",
+                                                          "matplotlib", "click"}:
+                offenders.append(f"{path.relative_to(ROOT)} imports {name} (model/ is numpy + stdlib)")
     assert offenders == []
 
 

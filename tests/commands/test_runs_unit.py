@@ -146,7 +146,7 @@ def test_unit_shows_lots_and_every_reading_with_its_limits_and_verdict(run, db_u
     assert first["decoder"] is None
     assert retest["decoder"]["scheme_a"] == "linear-in-period"
     assert retest["instruments"] == [{"role": "counter", "make": "Tessaly Instruments", "model": "YQ-C83",
-                                      "serial": "T31-0042", "firmware": "1.04", "certificate": "CAL-26-0117",
+                                      "serial": "T31-0042", "firmware": "1.04", "calibration_certificate": "CAL-26-0117",
                                       "calibration_due": "2027-01-31"}]
 
 
@@ -214,3 +214,16 @@ def test_runs_names_a_database_path_or_url_it_cannot_use_as_bad_input(db: str, t
     assert result.exit_code == 2, result.output
     last = result.stderr.strip().splitlines()[-1]
     assert last.startswith("knobline: error: database") and "internal error" not in result.stderr
+
+
+def test_unit_json_and_the_certificate_record_state_a_run_alike(run, db_url: str) -> None:
+    # One serialiser of run details: what `unit --json` says of a run's steps, readings, instruments and
+    # decoder is what the signed certificate record says (common practice, no source).
+    from fixture.reporting.certificate import build_record
+
+    unit = json.loads(run("unit", "PW22-000001", "--db", db_url, "--json").stdout)["runs"][1]
+    with open_store(db_url) as store:
+        record = build_record(store, unit["run_id"])
+    assert unit["steps"] == record["steps"] and unit["instruments"] == record["instruments"]
+    assert unit["decoder"] == record["decoder"] and unit["decoder"] is not None
+    assert record["instruments"][0]["calibration_certificate"] == "CAL-26-0117"

@@ -14,7 +14,7 @@ from fixture.model.decision import DecisionRule
 from fixture.model.limits import compute_limits
 from fixture.model.measurement_plan import measure_row, measure_table, signal_facts
 from fixture.model.tolerance.monte_carlo import McOptions
-from fixture.model.uncertainty import CounterSettings, counter_budget
+from fixture.model.uncertainty import CounterGate, counter_budget
 
 
 @pytest.fixture(scope="module")
@@ -53,7 +53,7 @@ def test_a_fixed_gate_time_is_used_for_the_budget(demo) -> None:
     fixed = replace(setup, gate_time_s=0.5)
     m = measure_row(design, row, fixed)
     expected = counter_budget(row.quantity, signal_facts(design, row.setting, fixed), setup.counter,
-                              CounterSettings(0.5))
+                              CounterGate(0.5))
     assert m.expanded_u == pytest.approx(expected.expanded_uncertainty)
     assert m.setting == "gate 500 ms"
 

@@ -15,7 +15,7 @@ from fixture.model.decision import tur
 from fixture.model.measurement_time import (
     DEFAULT_GATE_TIMES_S,
     counter_test_time_s,
-    scope_settings,
+    scope_timebases,
     scope_test_time_s,
     series_1_2_5,
     shortest_counter_gate,
@@ -23,9 +23,9 @@ from fixture.model.measurement_time import (
 )
 from fixture.model.uncertainty import (
     CounterAccuracy,
-    CounterSettings,
+    CounterGate,
     ScopeAccuracy,
-    ScopeSettings,
+    ScopeTimebase,
     SignalFacts,
     counter_budget,
     quantity_value,
@@ -57,7 +57,7 @@ def _brute_force_tur(budget, low, high, quantity):
 def test_chosen_gate_is_shortest_that_meets_target(quantity, low, high):
     choice = shortest_counter_gate(quantity, FACTS, COUNTER, low, high, target_tur=4.0)
     # Brute force, common practice: evaluate every gate in the list, keep those reaching the target.
-    ratios = {g: _brute_force_tur(counter_budget(quantity, FACTS, COUNTER, CounterSettings(g)), low, high, quantity)
+    ratios = {g: _brute_force_tur(counter_budget(quantity, FACTS, COUNTER, CounterGate(g)), low, high, quantity)
               for g in DEFAULT_GATE_TIMES_S}
     good = [g for g, ratio in ratios.items() if ratio >= 4.0]
     assert good, "test case must be reachable"
@@ -72,7 +72,7 @@ def test_unreachable_target_is_reported_with_best_setting():
     # With a 1e-6 time base, a ±1 ppm tolerance can never reach TUR 4 (U >= 2 * 1e-6 / sqrt(3) relative).
     low, high = 737.0 * (1 - 1e-6), 737.0 * (1 + 1e-6)
     choice = shortest_counter_gate("frequency_hz", FACTS, COUNTER, low, high, target_tur=4.0)
-    ratios = [_brute_force_tur(counter_budget("frequency_hz", FACTS, COUNTER, CounterSettings(g)), low, high,
+    ratios = [_brute_force_tur(counter_budget("frequency_hz", FACTS, COUNTER, CounterGate(g)), low, high,
                                "frequency_hz") for g in DEFAULT_GATE_TIMES_S]
     assert max(ratios) < 4.0
     assert not choice.meets_target
@@ -90,7 +90,7 @@ def test_unreachable_target_is_reported_with_best_setting():
     ("high_time_s", 0.42 * PERIOD_S - 0.2e-6, 0.42 * PERIOD_S + 0.2e-6),
 ])
 def test_chosen_scope_record_is_shortest_that_meets_target(quantity, low, high):
-    candidates = scope_settings(1e6, 1000, 10_000_000)
+    candidates = scope_timebases(1e6, 1000, 10_000_000)
     choice = shortest_scope_record(quantity, FACTS, SCOPE, low, high, candidates=candidates, target_tur=4.0)
     good = []
     for settings in candidates:  # brute force, common practice
@@ -104,8 +104,8 @@ def test_chosen_scope_record_is_shortest_that_meets_target(quantity, low, high):
 
 
 def test_records_too_short_for_a_period_are_never_chosen():
-    too_short = ScopeSettings(1e6, 1000)  # 1 ms < one 1.36 ms period
-    long_enough = ScopeSettings(1e6, 5000)
+    too_short = ScopeTimebase(1e6, 1000)  # 1 ms < one 1.36 ms period
+    long_enough = ScopeTimebase(1e6, 5000)
     choice = shortest_scope_record("frequency_hz", FACTS, SCOPE, 736.0, 738.0, candidates=[too_short, long_enough])
     assert choice.setting == long_enough
     alone = shortest_scope_record("frequency_hz", FACTS, SCOPE, 736.0, 738.0, candidates=[too_short])
@@ -118,9 +118,9 @@ def test_counter_test_time_counts_whole_periods_plus_one_and_overhead():
     gate_s, overhead_s = 0.01, 0.003
     n = math.ceil(Fraction(gate_s) / Fraction(PERIOD_S))
     one = (n + 1) * PERIOD_S + overhead_s
-    assert counter_test_time_s("frequency_hz", CounterSettings(gate_s), PERIOD_S, overhead_s) == pytest.approx(one)
-    assert counter_test_time_s("duty_pct", CounterSettings(gate_s), PERIOD_S, overhead_s) == pytest.approx(2 * one)
-    settings = ScopeSettings(2e6, 20_000)
+    assert counter_test_time_s("frequency_hz", CounterGate(gate_s), PERIOD_S, overhead_s) == pytest.approx(one)
+    assert counter_test_time_s("duty_pct", CounterGate(gate_s), PERIOD_S, overhead_s) == pytest.approx(2 * one)
+    settings = ScopeTimebase(2e6, 20_000)
     assert scope_test_time_s(settings, PERIOD_S, overhead_s) == pytest.approx(0.01 + PERIOD_S + overhead_s)
 
 

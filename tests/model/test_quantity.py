@@ -79,3 +79,12 @@ def test_format_si_uses_a_prefix_and_significant_figures() -> None:
     assert format_si(1e-7, "F") == "100.0 nF"
     assert format_si(0.00123, "s") == "1.230 ms"
     assert format_si(0, "V") == "0 V"
+
+
+def test_format_si_puts_no_prefix_on_percent_or_ppm() -> None:
+    # Percent and ppm are plain numbers: an SI prefix on them (400 m%) is not used
+    # (SI Brochure, 9th ed., 5.4.7, from memory); significant figures as for any unit.
+    assert format_si(0.4, "%") == "0.4000 %"
+    assert format_si(49.2249, "%") == "49.22 %"
+    assert format_si(2500, "ppm", 3) == "2500 ppm"
+    assert format_si(0.4, "V") == "400.0 mV"

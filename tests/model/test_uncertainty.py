@@ -17,9 +17,9 @@ from uncertainties import ufloat
 from fixture.errors import UserInputError
 from fixture.model.uncertainty import (
     CounterAccuracy,
-    CounterSettings,
+    CounterGate,
     ScopeAccuracy,
-    ScopeSettings,
+    ScopeTimebase,
     SignalFacts,
     UncertaintyBudget,
     UncertaintyComponent,
@@ -50,7 +50,7 @@ def component(budget: UncertaintyBudget, starts: str) -> UncertaintyComponent:
 
 
 def test_rectangular_bound_becomes_a_over_sqrt3():
-    budget = counter_budget("period_s", FACTS, COUNTER, CounterSettings(0.01))
+    budget = counter_budget("period_s", FACTS, COUNTER, CounterGate(0.01))
     a = COUNTER.timebase_error * PERIOD_S
     # GUM JCGM 100:2008 4.3.7: a quantity equally likely anywhere in ±a has u = a/sqrt(3);
     # scipy's uniform distribution on [-a, a] gives the same standard deviation independently.
@@ -59,7 +59,7 @@ def test_rectangular_bound_becomes_a_over_sqrt3():
 
 
 def test_adc_step_becomes_q_over_sqrt12_at_each_crossing():
-    settings = ScopeSettings(sample_rate_hz=2e6, record_length=20_000)
+    settings = ScopeTimebase(sample_rate_hz=2e6, record_length=20_000)
     budget = scope_budget("period_s", FACTS, SCOPE, settings)
     q = SCOPE.vertical_resolution_v
     n = math.floor(settings.record_duration_s / PERIOD_S) + 1  # rising crossings
@@ -74,13 +74,13 @@ def test_adc_step_becomes_q_over_sqrt12_at_each_crossing():
 def test_coverage_factor_matches_normal_distribution(k):
     # GUM 6.3.3 / G.1.3: k = 2 covers about 95.45 % of a normal distribution; scipy.stats.norm is the reference.
     assert coverage_probability(k) == pytest.approx(stats.norm.cdf(k) - stats.norm.cdf(-k), abs=1e-12)
-    budget = counter_budget("frequency_hz", FACTS, COUNTER, CounterSettings(0.1))
+    budget = counter_budget("frequency_hz", FACTS, COUNTER, CounterGate(0.1))
     assert budget.coverage_factor == 2.0
     assert budget.expanded_uncertainty == pytest.approx(2.0 * budget.combined_standard_uncertainty, rel=1e-15)
 
 
 def test_combined_uncertainty_is_root_sum_square_of_components():
-    budget = counter_budget("high_time_s", FACTS, COUNTER, CounterSettings(0.01))
+    budget = counter_budget("high_time_s", FACTS, COUNTER, CounterGate(0.01))
     us = np.array([c.standard_uncertainty for c in budget.components])
     # GUM eq. (10), uncorrelated inputs with sensitivities folded in: u_c = sqrt(sum u_i^2).
     assert budget.combined_standard_uncertainty == pytest.approx(float(np.sqrt(np.sum(us ** 2))), rel=1e-12)
@@ -113,7 +113,7 @@ def test_counter_budget_matches_uncertainties_propagation(quantity):
     gate_s = 0.02
     n = math.ceil(Fraction(gate_s) / Fraction(PERIOD_S))
     reference = _counter_model(quantity, n)
-    budget = counter_budget(quantity, FACTS, COUNTER, CounterSettings(gate_s))
+    budget = counter_budget(quantity, FACTS, COUNTER, CounterGate(gate_s))
     # The `uncertainties` package propagates to first order with the correlation of the shared time base,
     # i.e. GUM eq. (13); it must agree with our budget, where the time base cancels in the duty.
     assert budget.value == pytest.approx(reference.nominal_value, rel=1e-12)
@@ -122,7 +122,7 @@ def test_counter_budget_matches_uncertainties_propagation(quantity):
 
 @pytest.mark.parametrize("quantity", ["frequency_hz", "duty_pct"])
 def test_scope_budget_matches_uncertainties_propagation(quantity):
-    settings = ScopeSettings(sample_rate_hz=250e3, record_length=50_000)  # 4 us samples: edges of 22-36 us
+    settings = ScopeTimebase(sample_rate_hz=250e3, record_length=50_000)  # 4 us samples: edges of 22-36 us
     m = math.floor(settings.record_duration_s / PERIOD_S)
     n = m + 1
     x = np.arange(n) - (n - 1) / 2
@@ -144,8 +144,8 @@ def test_counter_resolution_term_falls_as_one_over_n():
         # A reciprocal counter averages the whole periods started in the gate, N = ceil(gate * f)
         # (common practice, from memory); Fraction keeps the reference free of rounding.
         n = math.ceil(Fraction(gate) / Fraction(PERIOD_S))
-        assert CounterSettings(gate).averaged_periods(PERIOD_S) == n
-        budget = counter_budget("period_s", FACTS, COUNTER, CounterSettings(gate))
+        assert CounterGate(gate).averaged_periods(PERIOD_S) == n
+        budget = counter_budget("period_s", FACTS, COUNTER, CounterGate(gate))
         ns.append(n)
         terms.append(component(budget, "resolution").standard_uncertainty)
     assert ns == sorted(ns) and len(set(ns)) == len(ns)
@@ -160,7 +160,7 @@ def test_counter_resolution_term_falls_as_one_over_n():
 def test_averaged_periods_counts_periods_started_in_gate(gate, period, expected):
     # ceil(gate / period), at least one (common practice for reciprocal counters, from memory).
     assert max(1, math.ceil(Fraction(gate) / Fraction(period))) == expected
-    assert CounterSettings(float(gate)).averaged_periods(float(period)) == expected
+    assert CounterGate(float(gate)).averaged_periods(float(period)) == expected
 
 
 SCOPE_WITH_THRESHOLD_ERROR = ScopeAccuracy(timebase_error=50e-6, noise_v_rms=4e-3, vertical_resolution_v=0.08,
@@ -168,8 +168,8 @@ SCOPE_WITH_THRESHOLD_ERROR = ScopeAccuracy(timebase_error=50e-6, noise_v_rms=4e-
 
 
 @pytest.mark.parametrize(("budget", "name"), [
-    (counter_budget("high_time_s", FACTS, COUNTER, CounterSettings(0.01)), "trigger level"),
-    (scope_budget("high_time_s", FACTS, SCOPE_WITH_THRESHOLD_ERROR, ScopeSettings(1e6, 10_000)), "threshold level"),
+    (counter_budget("high_time_s", FACTS, COUNTER, CounterGate(0.01)), "trigger level"),
+    (scope_budget("high_time_s", FACTS, SCOPE_WITH_THRESHOLD_ERROR, ScopeTimebase(1e6, 10_000)), "threshold level"),
 ])
 def test_level_error_moves_width_by_both_edges(budget, name):
     # Independent check: find the crossings of a finely sampled trapezoid pulse numerically at two levels.
@@ -221,7 +221,7 @@ def test_least_squares_period_weights_match_numpy(cycles):
 
 
 def test_coarse_sampling_adds_worst_case_interpolation_error():
-    settings = ScopeSettings(sample_rate_hz=50e3, record_length=1000)  # 20 us samples: edges of 22.5 and 36 us
+    settings = ScopeTimebase(sample_rate_hz=50e3, record_length=1000)  # 20 us samples: edges of 22.5 and 36 us
     m = math.floor(settings.record_duration_s / PERIOD_S)
     a_rise = interpolation_error_bound_s(20e-6, 9.0 / SLEW_RISE)
     a_fall = interpolation_error_bound_s(20e-6, 9.0 / SLEW_FALL)
@@ -251,7 +251,7 @@ def test_least_squares_period_noise_matches_monte_carlo():
 
 
 def test_scope_record_shorter_than_a_period_is_refused():
-    short = ScopeSettings(sample_rate_hz=1e6, record_length=int(0.9 * PERIOD_S * 1e6))
+    short = ScopeTimebase(sample_rate_hz=1e6, record_length=int(0.9 * PERIOD_S * 1e6))
     with pytest.raises(UserInputError, match="whole period"):
         scope_budget("period_s", FACTS, SCOPE, short)
 
@@ -268,7 +268,7 @@ def test_values_convert_between_frequency_period_and_duty_percent():
 
 def test_budget_names_dominant_component_and_shares_sum_to_whole():
     sloppy = CounterAccuracy(timebase_error=1e-3, resolution_s=1e-9, trigger_level_error_v=0.0, input_noise_v_rms=0.0)
-    budget = counter_budget("frequency_hz", FACTS, sloppy, CounterSettings(1.0))
+    budget = counter_budget("frequency_hz", FACTS, sloppy, CounterGate(1.0))
     assert budget.dominant.name == "time base"
     shares = [float(row[2].rstrip(" %")) for row in budget.rows()]
     assert sum(shares) == pytest.approx(100.0, abs=0.1 * len(shares))  # common practice, no source
@@ -281,7 +281,7 @@ def test_budget_names_dominant_component_and_shares_sum_to_whole():
     lambda: CounterAccuracy(timebase_error=float("nan"), resolution_s=1e-9, trigger_level_error_v=0,
                             input_noise_v_rms=0),
     lambda: ScopeAccuracy(timebase_error=1e-5, noise_v_rms=-1e-3, vertical_resolution_v=0.01),
-    lambda: ScopeSettings(sample_rate_hz=1e6, record_length=1),
+    lambda: ScopeTimebase(sample_rate_hz=1e6, record_length=1),
     lambda: UncertaintyComponent("x", -1.0, "normal", "datasheet"),
     lambda: UncertaintyBudget("period_s", "s", 1e-3, ()),
 ])

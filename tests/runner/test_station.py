@@ -42,3 +42,15 @@ def test_a_manual_actuator_asks_the_operator(tmp_path) -> None:
                       ask=lambda text: asked.append(text) or True) as station:
         station.driver("actuator").move_both(25.0, 75.0)
     assert asked and "25" in asked[0]
+
+
+def test_typed_role_accessors_give_each_driver_and_a_missing_role_is_a_fixture_fault() -> None:
+    # fail safe (RULES.md): a step asking for an instrument the station did not open is a station fault
+    from fixture.errors import FixtureFault
+    from fixture.instruments import Counter, Supply
+
+    config = load_station("sequences/demo-station.toml")
+    with open_station(config, today=TODAY, roles=("counter", "supply")) as station:
+        assert isinstance(station.counter(), Counter) and isinstance(station.supply(), Supply)
+        with pytest.raises(FixtureFault, match="no scope"):
+            station.scope()

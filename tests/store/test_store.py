@@ -179,7 +179,7 @@ def test_a_run_remembers_its_instruments_calibration(store: Store) -> None:
                                    calibration_certificate="CAL-2", calibration_due=dt.date(2027, 1, 1)) == counter
     run_id = begin(store, instruments=[counter])
     (use,) = store.run(run_id).instruments
-    assert (use.serial, use.firmware, use.certificate, use.calibration_due) == \
+    assert (use.serial, use.firmware, use.calibration_certificate, use.calibration_due) == \
         ("SN-41", "2.2", "CAL-2", dt.date(2027, 1, 1))
 
 
