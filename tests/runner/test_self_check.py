@@ -58,7 +58,7 @@ def test_a_golden_unit_reading_off_fails_the_check_and_nothing_is_covered(bench)
                                                                       factor=1.2)]))
     record = run_self_check(store, station, design, operator="op")
     assert record.verdict == "fail"
-    assert "frequency at A 50 % B 50 %" in record.message and "outside" in record.message
+    assert "Frequency at knob A 50 %, B 50 %" in record.message and "Hz, outside" in record.message
     assert current_self_check(store, config.name, dt.datetime.now(dt.UTC)) is None
 
 
