@@ -26,7 +26,8 @@ from pathlib import Path
 from fixture.errors import OverflowReading
 from fixture.files.sequence_file import load_sequence
 from fixture.files.station_file import load_station
-from fixture.runner.plan import PlanStep, compile_plan
+from fixture.runner.plan import compile_plan
+from fixture.runner.plan_points import PlanStep
 from fixture.runner.station import open_station
 from fixture.runner.unit_run import run_unit
 from fixture.sim.dut import build_unit

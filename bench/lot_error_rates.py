@@ -34,8 +34,8 @@ import numpy as np
 from scipy.stats import beta
 
 from fixture._data import data_dir
-from fixture.analytics.diagnosis import Reading
 from fixture.analytics.lot_attribution import LotUnit, attribute_lots
+from fixture.analytics.part_fit import Reading
 from fixture.files.design_file import load_design
 from fixture.model.design import ProductDesign
 from fixture.sim.batch import plan_batch

@@ -11,7 +11,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from fixture.analytics.diagnosis import Reading
+from fixture.analytics.part_fit import Reading
 from fixture.sim.readings import counter_reading
 from fixture.store import MeasurementRecord, Store, open_store
 

@@ -14,11 +14,8 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from fixture.analytics.diagnosis import (
-    Reading,
-    ReadingUncertainty,
-    diagnose_unit,
-)
+from fixture.analytics.diagnosis import diagnose_unit
+from fixture.analytics.part_fit import Reading, ReadingUncertainty
 from fixture.errors import UserInputError
 from fixture.files.design_file import load_design
 from fixture.sim.dut import Defect, SimulatedUnit, build_unit

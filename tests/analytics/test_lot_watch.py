@@ -9,8 +9,8 @@ import numpy as np
 import pytest
 
 from fixture._data import data_dir
-from fixture.analytics.diagnosis import PartEstimate, Reading, UnitDiagnosis, diagnose_unit
 from fixture.analytics.cusum_arl import siegmund_arl, simulated_run_lengths
+from fixture.analytics.diagnosis import PartEstimate, UnitDiagnosis, diagnose_unit
 from fixture.analytics.lot_watch import (
     ChartState,
     Side,
@@ -20,6 +20,7 @@ from fixture.analytics.lot_watch import (
     watch_unit,
 )
 from fixture.analytics.lot_watch_run import state_of, step_run, watch_run
+from fixture.analytics.part_fit import Reading
 from fixture.files.design_file import load_design
 from fixture.model.design import ProductDesign
 from fixture.sim.batch import BatchPlan, plan_batch

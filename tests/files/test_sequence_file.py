@@ -10,7 +10,12 @@ from typing import Any
 import pytest
 
 from fixture.files.sequence_file import load_sequence
-from fixture.files.sequence_steps import CustomStep, DecoderCalibrationStep, KnobMatrixStep, PowerUpStep
+from fixture.files.step_specs import (
+    CustomStep,
+    DecoderCalibrationStep,
+    KnobMatrixStep,
+    PowerUpStep,
+)
 from fixture.files.station_file import load_station
 from fixture.files.toml_reader import FileProblems
 from tests.files.edits import edited_copy

@@ -17,18 +17,8 @@ import pytest
 from fixture.errors import UserInputError
 from fixture.files.design_file import load_design
 from fixture.model.circuits.base import DesignProblem, ParameterSpec, Signal, ccw_key, cw_key
-from fixture.model.decode import (
-    SCHEMES,
-    UnitEndpoints,
-    compare_knobs,
-    compare_schemes,
-    decode_duty,
-    decode_frequency,
-    decode_linear,
-    decode_period,
-    linearity,
-    unit_endpoints,
-)
+from fixture.model.decode import SCHEMES, UnitEndpoints, decode_duty, decode_frequency, decode_linear, decode_period
+from fixture.model.decode_linearity import compare_knobs, compare_schemes, linearity, unit_endpoints
 from fixture.model.design import Condition, Knob, Part, ProductDesign, pot_key
 from fixture.model.pot import LOG_TAPER_BASE, PotGeometry
 

@@ -13,7 +13,7 @@ from fixture.cli import main
 from fixture.commands.certificate import write_certificate
 from fixture.commands.verify import read_certificate_file, verify_certificate
 from fixture.reporting.operator_view import TerminalReporter, final_banner
-from fixture.runner.plan import PlanStep
+from fixture.runner.plan_points import PlanStep
 from fixture.store import open_store
 from tests.reporting import hostile
 

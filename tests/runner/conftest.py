@@ -11,7 +11,8 @@ import pytest
 
 from fixture.files.sequence_file import load_sequence
 from fixture.files.station_file import load_station
-from fixture.runner.plan import PlanStep, TestPlan, compile_plan
+from fixture.runner.plan import compile_plan
+from fixture.runner.plan_points import PlanStep, TestPlan
 from fixture.runner.station import open_station
 from fixture.runner.unit_run import run_unit
 from fixture.sim.dut import Defect, build_unit

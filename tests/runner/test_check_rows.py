@@ -10,7 +10,7 @@ import numpy as np
 import pytest
 from sqlalchemy import text
 
-from fixture.analytics.dataset import load_measurements
+from fixture.analytics.measurement_table import load_measurements
 from fixture.model.quantities import QUANTITIES
 from fixture.model.step_terms import CHECK_QUANTITIES, CheckKind, PointRole, StepKind
 from fixture.model.verdicts import Verdict

@@ -17,7 +17,7 @@ from fixture.errors import OverflowReading
 from fixture.model.step_terms import PointRole, StepKind
 from fixture.model.verdicts import Verdict
 from fixture.model.waveform.record import ScopeRecord
-from fixture.runner.plan import InstrumentSetting, TestPlan, TestPoint
+from fixture.runner.plan_points import InstrumentSetting, TestPlan, TestPoint
 from fixture.runner.readings import PointReader, check_value
 from fixture.runner.spot import output_levels, scope_capture
 from fixture.sim.dut import Defect

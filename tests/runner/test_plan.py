@@ -15,13 +15,13 @@ from fixture.files.station_file import load_station
 from fixture.files.toml_reader import FileProblems
 from fixture.model.tolerance.space import KnobSetting, ParameterSpace
 from fixture.model.tolerance.worst_case import worst_case
-from fixture.runner.plan import (
+from fixture.runner.plan import compile_plan
+from fixture.runner.plan_points import (
     InstrumentSetting,
     PointLimits,
     StepCheck,
     TestPlan,
     TestPoint,
-    compile_plan,
     decode_error_pct,
     judge,
     judge_check,

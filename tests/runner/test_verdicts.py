@@ -4,10 +4,10 @@ from __future__ import annotations
 
 import pytest
 
-from fixture.files.sequence_steps import STEP_KINDS
+from fixture.files.sequence_steps import STEP_KEYS
 from fixture.model.step_terms import CheckKind, PointRole, StepKind
 from fixture.model.verdicts import FINAL_VERDICTS, RUN_VERDICTS, STEP_VERDICTS, PointVerdict, Verdict
-from fixture.runner.plan import PlanStep, StepCheck
+from fixture.runner.plan_points import PlanStep, StepCheck
 from fixture.store import models
 
 
@@ -19,8 +19,10 @@ def test_the_enums_hold_exactly_the_words_the_schema_allows_so_no_migration_is_n
     assert {v.value for v in PointVerdict} == set(models.MEASUREMENT_VERDICTS)
 
 
-def test_step_kinds_are_the_kinds_a_sequence_file_may_name() -> None:
-    assert [k.value for k in StepKind] == list(STEP_KINDS)
+def test_every_step_kind_has_the_keys_a_sequence_file_may_give_it() -> None:
+    # common practice, no source: a kind without its key list would refuse every key of its steps
+    assert set(STEP_KEYS) == set(StepKind)
+    assert all("kind" in keys and "name" in keys for keys in STEP_KEYS.values())
 
 
 @pytest.mark.parametrize(("verdict", "code"), [("pass", 0), ("fail", 1), ("station-fault", 3), ("aborted", 4),
