@@ -72,32 +72,32 @@ def test_serial_pattern_must_match_the_whole_serial() -> None:
 
 def test_unknown_key_is_one_line(tmp_path: Path) -> None:
     line = only_problem(variant(tmp_path, 'settle = "200 ms"', 'setle = "200 ms"'))
-    assert line.startswith(f'{tmp_path / DEMO.name}: steps[0] (power-up "power up").setle: '
+    assert line.startswith(f'{tmp_path / DEMO.name}: step 1 (power-up "power up").setle: '
                            "expected one of the keys")
     assert line.endswith("found an unknown key")
 
 
 def test_unknown_step_kind_is_one_line(tmp_path: Path) -> None:
     line = only_problem(variant(tmp_path, 'kind = "cross-talk"', 'kind = "crosstalk"'))
-    assert 'steps[3] (crosstalk "knobs independent").kind: expected one of power-up, knob-matrix, ' in line
+    assert 'step 4 (crosstalk "knobs independent").kind: expected one of power-up, knob-matrix, ' in line
     assert line.endswith("found 'crosstalk'")
 
 
 def test_stop_outside_the_travel_is_one_line(tmp_path: Path) -> None:
     line = only_problem(variant(tmp_path, "duty_over_knob_a = [0, 50, 100]", "duty_over_knob_a = [0, 50, 120]"))
-    assert line.endswith('steps[3] (cross-talk "knobs independent").duty_over_knob_a[2]: expected a knob '
+    assert line.endswith('step 4 (cross-talk "knobs independent").duty_over_knob_a[2]: expected a knob '
                          "position between 0 and 100 % of rotation, found 120")
 
 
 def test_bad_gate_time_is_one_line_naming_file_step_and_key(tmp_path: Path) -> None:
     path = variant(tmp_path, 'gate_time = "100 ms"', 'gate_time = "-1 s"')
-    assert only_problem(path) == (f'{path}: steps[1] (knob-matrix "frequency at knob A stops").gate_time: '
+    assert only_problem(path) == (f'{path}: step 2 (knob-matrix "frequency at knob A stops").gate_time: '
                                   "expected a gate time such as '100 ms', above 0 and at most 100 s, found '-1 s'")
 
 
 def test_unknown_quantity_is_one_line(tmp_path: Path) -> None:
     line = only_problem(variant(tmp_path, 'measure = ["duty_pct"]', 'measure = ["duty_percent"]'))
-    assert line.endswith('steps[2] (knob-matrix "duty at knob B stops").measure[0]: expected one of '
+    assert line.endswith('step 3 (knob-matrix "duty at knob B stops").measure[0]: expected one of '
                          "frequency_hz, period_s, duty_pct, found 'duty_percent'")
 
 
@@ -114,7 +114,7 @@ def test_role_the_station_cannot_provide_is_one_line(tmp_path: Path) -> None:
 def test_step_on_an_instrument_the_station_does_not_measure_with_is_one_line(tmp_path: Path) -> None:
     line = only_problem(variant(tmp_path, 'instrument = "counter"\ngate_time = "100 ms"',
                                 'instrument = "scope"\nrecord_cycles = 12'))
-    assert 'steps[1] (knob-matrix "frequency at knob A stops").instrument: expected the instrument station ' in line
+    assert 'step 2 (knob-matrix "frequency at knob A stops").instrument: expected the instrument station ' in line
     assert line.endswith("found 'scope'")
 
 
@@ -137,7 +137,7 @@ def with_custom_step(tmp_path: Path, call: str) -> Path:
 def test_custom_step_that_does_not_import_is_one_line(tmp_path: Path) -> None:
     path = with_custom_step(tmp_path, "no_such_knobline_plugin:check")
     line = only_problem(path)
-    assert line.startswith(f'{path}: steps[5] (custom "firmware version").call: expected an importable module, '
+    assert line.startswith(f'{path}: step 6 (custom "firmware version").call: expected an importable module, '
                            "found 'no_such_knobline_plugin:check' (ModuleNotFoundError")
 
 
