@@ -42,3 +42,13 @@ def test_a_manual_actuator_asks_the_operator(tmp_path) -> None:
                       ask=lambda text: asked.append(text) or True) as station:
         station.driver("actuator").move_both(25.0, 75.0)
     assert asked and "25" in asked[0]
+
+
+def test_an_expired_instrument_outside_the_sequences_roles_is_opened_and_identified_for_the_record() -> None:
+    # The scope (due 2027-02-28) is past due on 2027-03-01; a counter sequence does not use it, so the
+    # station opens, identifies the scope (its identity and calibration are recorded with each run) and
+    # marks it unused; the counter is still in date.
+    config = load_station("sequences/demo-station.toml")
+    with open_station(config, today=dt.date(2027, 3, 1), uses=("counter", "supply", "actuator")) as station:
+        assert [(s.role, s.used) for s in station.expired_calibrations] == [("scope", False)]
+        assert station.identities["scope"].model == "YQ-S47"
