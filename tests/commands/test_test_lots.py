@@ -15,6 +15,7 @@ from pathlib import Path
 import pytest
 from click.testing import CliRunner
 
+import fixture.commands._lots
 from fixture.cli import main
 from fixture.commands._lots import gather_lots
 from fixture.errors import UsageError
@@ -132,6 +133,21 @@ def test_the_prompt_asks_for_each_missing_lot_by_the_parts_words_and_takes_lists
     said = capsys.readouterr().err
     assert "Lots of 10 parts to record" in said
     assert "c_integratr" in said and "C1-9999Z" in said and "U+001B" in said and said.count("try again") == 3
+
+
+def test_on_a_terminal_test_asks_for_the_missing_lots_on_stderr_and_json_stays_clean(tmp_path, monkeypatch):
+    monkeypatch.setattr(fixture.commands._lots, "at_terminal", lambda: True)
+    required = load_sequence(SEQUENCE, search_dirs=(ROOT / "sequences",)).required_lots  # asked in this order
+    answers = [DEMO_LOTS[p] for p in required if p != "c_integrator"]
+    db = tmp_path / "r.sqlite"
+    result = CliRunner().invoke(main, ["test", "--serial", "PW22-000003", "--lot", "c_integrator=C1-2611A", "--db",
+                                       str(db), "--operator", "t", "--json"], input="\n".join(answers) + "\n",
+                                catch_exceptions=False)
+    assert result.exit_code == 0, result.stderr
+    assert json.loads(result.stdout)["verdict"] == "pass"  # the prompts went to stderr
+    assert "Lot of RV2 level knob (knob B): " in result.stderr and "Lot of C1" not in result.stderr
+    with open_store(str(db)) as store:
+        assert store.unit("PW22-000003").lots == DEMO_LOTS
 
 
 def test_the_prompt_is_not_used_with_a_traveller(tmp_path):
