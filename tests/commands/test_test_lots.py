@@ -131,7 +131,7 @@ def test_the_prompt_asks_for_each_missing_lot_by_the_parts_words_and_takes_lists
     assert asked.count("Lot of R4 Schmitt feedback resistor (output to +in)") == 3  # two wrong answers
     assert asked.count("Lot of R7 threshold divider, ground side of knob B") == 2  # the escape sequence
     said = capsys.readouterr().err
-    assert "Lots of 10 parts to record" in said
+    assert "Lots to record: 10 parts;" in said
     assert "c_integratr" in said and "C1-9999Z" in said and "U+001B" in said and said.count("try again") == 3
 
 
