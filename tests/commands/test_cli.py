@@ -12,6 +12,7 @@ from click.testing import CliRunner
 
 from fixture.cli import main
 from fixture.files.design_file import load_design
+from tests.demo_lots import LOT_OPTIONS
 
 DEMO = Path("sequences/demo-panel.toml")
 
@@ -285,7 +286,7 @@ def test_measure_refuses_a_station_another_process_holds_and_leaves_its_run_alon
 
 def test_test_command_exit_codes_follow_the_verdict(run, tmp_path: Path) -> None:
     db = str(tmp_path / "r.sqlite")
-    good = run("test", "--serial", "PW22-000001", "--db", db, "--operator", "t", "--json")
+    good = run("test", "--serial", "PW22-000001", *LOT_OPTIONS, "--db", db, "--operator", "t", "--json")
     assert good.exit_code == 0, good.stderr
     data = json.loads(good.stdout)
     assert data["verdict"] == "pass" and len(data["steps"]) == 5

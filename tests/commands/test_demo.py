@@ -14,6 +14,7 @@ from fixture.cli import main
 from fixture.files.design_file import load_design
 from fixture.sim.batch import plan_batch
 from fixture.store import open_store
+from tests.demo_lots import DEMO_LOTS, lot_options
 from tests.json_keys import all_keys, documented_json_keys
 
 
@@ -35,13 +36,14 @@ def test_demo_batch_fails_every_planted_defect_and_stores_every_run(tmp_path: Pa
 
 def test_test_command_takes_lots_from_a_traveller(tmp_path: Path) -> None:
     traveller = tmp_path / "travellers.csv"
-    traveller.write_text("serial,c_integrator,knob_a_pot\nPW22-000777,C1-2611A,RV1-2609B\n", encoding="utf-8")
+    lots = {**DEMO_LOTS, "knob_a_pot": "RV1-2609B"}
+    traveller.write_text(f"serial,{','.join(lots)}\nPW22-000777,{','.join(lots.values())}\n", encoding="utf-8")
     db = tmp_path / "r.sqlite"
     result = CliRunner().invoke(main, ["test", "--serial", "PW22-000777", "--traveller", str(traveller), "--db",
                                        str(db), "--operator", "t", "--json"], catch_exceptions=False)
     assert result.exit_code == 0, result.stderr
     with open_store(str(db)) as store:
-        assert store.unit("PW22-000777").lots == {"c_integrator": "C1-2611A", "knob_a_pot": "RV1-2609B"}
+        assert store.unit("PW22-000777").lots == lots
 
 
 def test_demo_ends_with_next_steps_that_work_as_printed_and_a_second_demo_continues(
@@ -90,7 +92,7 @@ def test_batch_report_prints_hostile_lot_codes_and_operators_as_text(tmp_path: P
     db = str(tmp_path / "r.sqlite")
     hostile = "<script>alert(1)</script>"
     for serial, lot in (("PW22-000501", hostile), ("PW22-000502", "C1-2611A"), ("PW22-000503", hostile)):
-        result = CliRunner().invoke(main, ["test", "--serial", serial, "--lot", f"c_integrator={lot}",
+        result = CliRunner().invoke(main, ["test", "--serial", serial, *lot_options(c_integrator=lot),
                                            "--operator", hostile, "--db", db, "--json"], catch_exceptions=False)
         assert result.exit_code == 0, result.stderr
     report = CliRunner().invoke(main, ["report", "batch", "--db", db, "--out", str(tmp_path), "--json"],

@@ -14,9 +14,10 @@ import fixture.sim.dut
 from fixture.cli import main
 from fixture.store import open_store
 from fixture.store.lot_watch import run_lot_watch
+from tests.demo_lots import lot_options
 from tests.json_keys import all_keys, documented_json_keys
 
-LOTS = ("--lot", "c_integrator=C1-2611A", "--lot", "r_integrator=R5-2601A", "--lot", "knob_a_pot=RV1-2604A")
+LOTS = lot_options(c_integrator="C1-2611A", r_integrator="R5-2601A", knob_a_pot="RV1-2604A")
 
 
 def run_test(db: Path, number: int, *args: str):

@@ -9,6 +9,7 @@ from click.testing import CliRunner
 
 from fixture.cli import main
 from fixture.store import open_store
+from tests.demo_lots import LOT_OPTIONS
 
 ROOT = Path(__file__).resolve().parents[2]
 
@@ -41,7 +42,7 @@ def test_station_self_check_measures_the_golden_unit_and_records_it(tmp_path: Pa
 
 def test_a_required_self_check_gates_testing_and_each_run_records_it(tmp_path: Path) -> None:
     db, station = str(tmp_path / "r.sqlite"), str(station_copy(tmp_path, True))
-    refused = run("test", "--serial", "PW22-000501", "--station", station, "--db", db, "--operator", "t")
+    refused = run("test", "--serial", "PW22-000501", *LOT_OPTIONS, "--station", station, "--db", db, "--operator", "t")
     # Exit 3: the station cannot judge units yet (a station fault, README exit codes).
     assert refused.exit_code == 3
     lines = [line for line in refused.stderr.splitlines() if "self-check" in line]
@@ -51,7 +52,8 @@ def test_a_required_self_check_gates_testing_and_each_run_records_it(tmp_path: P
     checked = run("station", station, "--self-check", "--db", db, "--json")
     assert checked.exit_code == 0, checked.stderr
     check_id = json.loads(checked.stdout)["self_check"]["id"]
-    tested = run("test", "--serial", "PW22-000501", "--station", station, "--db", db, "--operator", "t", "--json")
+    tested = run("test", "--serial", "PW22-000501", *LOT_OPTIONS, "--station", station, "--db", db, "--operator", "t",
+                 "--json")
     assert tested.exit_code == 0, tested.stderr
     with open_store(db) as store:
         assert store.run(json.loads(tested.stdout)["run_id"]).summary.self_check_id == check_id

@@ -10,11 +10,12 @@ from click.testing import CliRunner
 from fixture.cli import main
 from fixture.reporting.signing import public_certificate_name, station_key
 from fixture.store import open_store
+from tests.demo_lots import LOT_OPTIONS
 from tests.json_keys import all_keys, documented_json_keys
 
 
 def run_test(tmp_path: Path, *args: str):
-    return CliRunner().invoke(main, ["test", "--serial", "PW22-000901", "--lot", "c_integrator=C1-2611A",
+    return CliRunner().invoke(main, ["test", "--serial", "PW22-000901", *LOT_OPTIONS,
                                      "--db", str(tmp_path / "r.sqlite"), "--operator", "ana", *args],
                               catch_exceptions=False)
 

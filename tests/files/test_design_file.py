@@ -118,3 +118,28 @@ def test_bare_value_is_an_exact_part(tmp_path: Path) -> None:
     path.write_text(text, encoding="utf-8")
     part = load_design(path).part("r_ref_top")
     assert part.nominal == 10e3 and part.tolerance == 0.0
+
+
+def test_the_demo_design_marks_lot_tracked_the_parts_its_traveller_and_batch_give_lots_for() -> None:
+    # Consistency of the shipped demo files (ours; common practice, no source): the parts the demo's
+    # traveller has columns for and the simulated batch draws lots of are the ones the design marks.
+    from fixture.files.traveller import read_traveller
+    from fixture.sim.batch import DEFAULT_LOTTED_PARTS
+
+    design = load_design(DEMO)
+    travellers = read_traveller(Path("sequences/demo-traveller.csv"), design)
+    assert set(design.lot_tracked_parts()) == set(DEFAULT_LOTTED_PARTS) == set(next(iter(travellers.values())))
+    assert not design.part("supply_v").lot_tracked  # a part without the key is not lot-tracked
+
+
+@pytest.mark.parametrize(("old", "new", "key", "found"), [
+    ('description = "polyester film"\nlot_tracked = true', 'description = "polyester film"\nlot_tracked = "yes"',
+     "parts.c_integrator.lot_tracked", "found 'yes'"),
+    ("hold = 50\nlot_tracked = true", "hold = 50\nlot_tracked = 1", "knobs.a.lot_tracked", "found 1"),
+])
+def test_lot_tracked_takes_true_or_false_only(tmp_path: Path, old: str, new: str, key: str, found: str) -> None:
+    # TOML 1.0 booleans are the bare words true and false; a string or a number is a slip, refused
+    # with the file, the key, what was expected and what was found (DEVELOPERS.md "Check where it enters").
+    line = only_problem(variant(tmp_path, old, new))
+    assert line.startswith(f"{tmp_path / 'demo-panel.toml'}: {key}: expected true or false")
+    assert line.endswith(found)

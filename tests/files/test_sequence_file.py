@@ -184,3 +184,35 @@ def test_every_problem_is_listed_at_once(tmp_path: Path) -> None:
     with pytest.raises(FileProblems) as info:
         load(path)
     assert len(info.value.problems) == 2
+
+
+def sequence_requiring(tmp_path: Path, value: str) -> Path:
+    return variant(tmp_path, "requires = [", f"required_lots = {value}\nrequires = [")
+
+
+def test_by_default_a_sequence_requires_the_lots_of_the_designs_lot_tracked_parts() -> None:
+    sequence = load(DEMO)
+    assert sequence.required_lots == sequence.design.lot_tracked_parts()
+    assert "c_integrator" in sequence.required_lots and "supply_v" not in sequence.required_lots
+
+
+def test_a_sequence_names_the_parts_whose_lots_it_requires_or_none(tmp_path: Path) -> None:
+    assert load(sequence_requiring(tmp_path, '["knob_a_pot", "c_integrator"]')).required_lots == \
+        ("knob_a_pot", "c_integrator")
+    # supply_v is not lot-tracked in the demo design; a sequence may still require its lot
+    assert load(sequence_requiring(tmp_path, '["supply_v"]')).required_lots == ("supply_v",)
+    assert load(sequence_requiring(tmp_path, "[]")).required_lots == ()
+
+
+@pytest.mark.parametrize(("value", "key", "found"), [
+    ('["c_integrator", "c99"]', "sequence.required_lots[1]", "found 'c99'"),
+    ('["c_integrator", "c_integrator"]', "sequence.required_lots[1]", "found 'c_integrator' again"),
+    ('"c_integrator"', "sequence.required_lots", "found 'c_integrator'"),
+    ("false", "sequence.required_lots", "found False"),
+])
+def test_required_lots_that_are_not_part_keys_of_the_design_are_one_line_each(tmp_path: Path, value: str, key: str,
+                                                                              found: str) -> None:
+    line = only_problem(sequence_requiring(tmp_path, value))
+    assert f"demo-sequence.toml: {key}: expected " in line and line.endswith(found)
+    if "c99" in value:  # an unknown part: the line names the design's parts to choose from
+        assert "a part of PW-22 dual-knob setpoint panel (supply_v, " in line and "knob_b_pot)" in line

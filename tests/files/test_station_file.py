@@ -117,3 +117,21 @@ def test_a_calibration_due_with_a_time_is_named_as_a_date_and_time_not_a_python_
     # TOML 1.0 "Local Date-Time" (toml.io): 2027-04-30T10:00:00 is a date and a time, not a date.
     line = only_problem(variant(tmp_path, "due = 2027-04-30\nlab", "due = 2027-04-30T10:00:00\nlab"))
     assert "calibration.due" in line and "2027-04-30 10:00:00" in line and "datetime" not in line
+
+
+def test_an_expired_instrument_the_work_does_not_use_does_not_stop_it(tmp_path: Path) -> None:
+    # Demo station: scope due 2027-02-28, counter and supply 2027-04-30. A sequence reading with the
+    # counter only does not measure with the scope, so the scope's calibration cannot bear on a verdict.
+    config = load_station(DEMO)
+    uses = ("counter", "supply", "actuator")
+    (scope,) = config.require_calibrated(datetime.date(2027, 3, 1), uses)
+    assert (scope.role, scope.used, scope.due) == ("scope", False, datetime.date(2027, 2, 28))
+    assert "VLQ-26-03981 was due 2027-02-28" in scope.unused_warning and "does not use it" in scope.unused_warning
+    # ... while an expired instrument it uses still refuses, naming only what stops it
+    with pytest.raises(CalibrationExpired) as info:
+        config.require_calibrated(datetime.date(2027, 5, 1), uses)
+    assert "counter" in info.value.message and "supply" in info.value.message
+    assert "scope" not in info.value.message
+    # without a sequence (knobline station) every instrument counts, as before
+    with pytest.raises(CalibrationExpired, match="VLQ-26-03981"):
+        config.require_calibrated(datetime.date(2027, 3, 1))

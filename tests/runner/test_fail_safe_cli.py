@@ -15,14 +15,16 @@ from click.testing import CliRunner
 
 from fixture.cli import main
 from fixture.store import open_store
+from tests.demo_lots import LOT_OPTIONS
 
 ROOT = Path(__file__).resolve().parents[2]
 
 
 def sequence_with(tmp_path: Path, call: str, parameters: dict[str, str], *, first: bool) -> Path:
-    """The demo sequence with a custom step calling ``call`` first or right after the power-up."""
+    """The demo sequence with a custom step calling ``call`` first or right after the power-up (no lots required)."""
     text = (ROOT / "sequences/demo-sequence.toml").read_text(encoding="utf-8")
     text = text.replace('design = "demo-panel.toml"', f'design = "{ROOT / "sequences/demo-panel.toml"}"')
+    text = text.replace("requires = [", "required_lots = []  # these tests are about ending early, not lots\nrequires = [")
     params = "".join(f'{k} = "{v}"\n' for k, v in parameters.items())
     step = f'[[steps]]\nkind = "custom"\nname = "injected"\ncall = "{call}"\n[steps.parameters]\n{params}\n'
     head, sep, rest = text.partition("\n[[steps]]")
@@ -194,7 +196,7 @@ def test_ctrl_c_at_a_manual_knob_prompt_ends_the_run_aborted_with_exit_4(tmp_pat
                        encoding="utf-8")
     db = tmp_path / "results.sqlite"
     proc = subprocess.Popen([sys.executable, "-m", "fixture.cli", "test", "--station", str(station), "--serial",
-                             "PW22-000606", "--db", str(db), "--operator", "t", "--json"], cwd=ROOT,
+                             "PW22-000606", *LOT_OPTIONS, "--db", str(db), "--operator", "t", "--json"], cwd=ROOT,
                             stdin=subprocess.PIPE, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
     try:
         seen = ""

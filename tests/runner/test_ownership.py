@@ -18,15 +18,17 @@ from fixture.runner.ownership import hold_station
 from fixture.store import open_store
 from fixture.store.lease import claim_lease, lease_holder
 from fixture.store.owner import ProcessIdentity
+from tests.demo_lots import LOT_OPTIONS
 
 ROOT = Path(__file__).resolve().parents[2]
 STATION = "PW-22 end-of-line bench 2"
 
 
 def held_sequence(tmp_path: Path, flag: Path, name: str = "held.toml") -> Path:
-    """The demo sequence plus a last step that waits for ``flag``: a run that stays open on demand."""
+    """The demo sequence plus a last step that waits for ``flag``: a run that stays open on demand (no lots required)."""
     text = (ROOT / "sequences/demo-sequence.toml").read_text(encoding="utf-8")
     text = text.replace('design = "demo-panel.toml"', f'design = "{ROOT / "sequences/demo-panel.toml"}"')
+    text = text.replace("requires = [", "required_lots = []  # these tests are about ownership, not lots\nrequires = [")
     text += ('\n[[steps]]\nkind = "custom"\nname = "hold"\ncall = "tests.runner.ownership_steps:wait_for_flag"\n'
              f'[steps.parameters]\nflag = "{flag}"\nseconds = 120\n')
     path = tmp_path / name
@@ -82,7 +84,7 @@ def test_a_second_process_on_the_same_station_is_refused_and_the_first_run_compl
                      "--operator", "one")
     processes.append(first)
     wait_for_steps(db, 5)
-    second = knobline("test", "--serial", "PW22-000402", "--db", str(db), "--operator", "two")
+    second = knobline("test", "--serial", "PW22-000402", *LOT_OPTIONS, "--db", str(db), "--operator", "two")
     processes.append(second)
     out, err = second.communicate(timeout=120)
     # Exit 3: a station fault (README exit codes); one line naming the holder.
@@ -122,7 +124,7 @@ def test_a_killed_owners_run_is_marked_incomplete_by_the_next_start(tmp_path, pr
         stale = lease_holder(store, STATION)
         assert stale is not None and stale.owner.pid == first.pid
     flag.touch()
-    nxt = knobline("test", "--serial", "PW22-000422", "--db", str(db))
+    nxt = knobline("test", "--serial", "PW22-000422", *LOT_OPTIONS, "--db", str(db))
     processes.append(nxt)
     _, err = nxt.communicate(timeout=120)
     assert nxt.returncode == 0, err
