@@ -33,6 +33,8 @@ SEQUENCE_EDITS = [
     ('name = "PW-22 end-of-line test"', 'name = "AB-7 end-of-line test"'),
     ('design = "demo-panel.toml"', 'design = "ab7-panel.toml"'),
     ('serial_pattern = "PW22-[0-9]{6}"', 'serial_pattern = "AB-[0-9]{4}"'),
+    # as README's rehearsal says: no lots to type on a rehearsal (a production sequence keeps the default)
+    ('# required_lots = ["c_integrator"]', 'required_lots = []  #'),
 ]
 PATTERN = "AB-[0-9]{4}"
 
