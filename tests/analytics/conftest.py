@@ -23,8 +23,8 @@ T0 = dt.datetime(2026, 3, 2, 8, 0, tzinfo=dt.UTC)
 
 
 @pytest.fixture
-def db_url(tmp_path: Path) -> str:
-    return f"sqlite:///{tmp_path / 'results.sqlite'}"
+def db_url(database_url: str) -> str:
+    return database_url
 
 
 @pytest.fixture

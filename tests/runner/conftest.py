@@ -54,24 +54,24 @@ class Line:
                         signal_path_check=signal_path_check)
 
 
-def _open_line(compiled, tmp_path, roles: tuple[str, ...] | None):
+def _open_line(compiled, database_url: str, roles: tuple[str, ...] | None):
     config, sequence, plan = compiled
-    with open_store(str(tmp_path / "results.sqlite")) as store, \
+    with open_store(database_url) as store, \
             open_station(config, today=dt.date(2026, 12, 2), roles=roles) as station, \
             SimulatedWorld(station, seed=3) as world:
         yield Line(sequence, plan, station, world, store)
 
 
 @pytest.fixture()
-def bench(compiled, tmp_path):
-    """The demo station: counter, scope, supply and actuator."""
-    yield from _open_line(compiled, tmp_path, None)
+def bench(compiled, database_url):
+    """The demo station: counter, scope, supply and actuator, recording to each backend in turn."""
+    yield from _open_line(compiled, database_url, None)
 
 
 @pytest.fixture()
-def counter_only_bench(compiled, tmp_path):
+def counter_only_bench(compiled, database_url):
     """The demo station opened without its scope: no second instrument to cross-check the counter."""
-    yield from _open_line(compiled, tmp_path, ("counter", "supply", "actuator"))
+    yield from _open_line(compiled, database_url, ("counter", "supply", "actuator"))
 
 
 @pytest.fixture()

@@ -19,8 +19,8 @@ STATION_SHA = hashlib.sha256(b"station file").hexdigest()
 
 
 @pytest.fixture
-def db_url(tmp_path: Path) -> str:
-    return f"sqlite:///{tmp_path / 'results.sqlite'}"
+def db_url(database_url: str) -> str:
+    return database_url
 
 
 @pytest.fixture

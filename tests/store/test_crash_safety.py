@@ -49,5 +49,8 @@ def test_a_killed_run_keeps_its_steps_and_is_marked_incomplete(store: Store, db_
         assert [s.name for s in detail.steps] == ["step 0", "step 1"]
         assert [s.measurements[0].value for s in detail.steps] == [1.25e-3, 1.25e-3 + 1]
         # PRAGMA integrity_check answers the single row 'ok' for a sound database (SQLite docs, from memory).
+        # PostgreSQL has no such check to ask; its own recovery is the server's business.
         with after.engine.connect() as connection:
+            if connection.dialect.name != "sqlite":
+                return
             assert connection.execute(text("PRAGMA integrity_check")).scalars().all() == ["ok"]

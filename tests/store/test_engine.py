@@ -11,10 +11,10 @@ from sqlalchemy.exc import IntegrityError
 from fixture.store import Store, default_db_path, make_engine, resolve_url
 
 
-def test_sqlite_connections_use_wal_full_sync_and_foreign_keys(store: Store) -> None:
+def test_sqlite_connections_use_wal_full_sync_and_foreign_keys(tmp_path: Path) -> None:
     # PRAGMA semantics from the SQLite documentation (from memory): journal_mode answers the mode in
     # lower case, foreign_keys 1 = on, synchronous 2 = FULL, busy_timeout in milliseconds.
-    with store.engine.connect() as connection:
+    with make_engine(str(tmp_path / "r.sqlite")).connect() as connection:
         assert connection.execute(text("PRAGMA journal_mode")).scalar() == "wal"
         assert connection.execute(text("PRAGMA foreign_keys")).scalar() == 1
         assert connection.execute(text("PRAGMA synchronous")).scalar() == 2

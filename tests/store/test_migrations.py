@@ -63,3 +63,31 @@ def test_a_run_recorded_before_ownership_keeps_its_data_and_is_judged_by_age(db_
         assert (summary.verdict, summary.self_check_id) == ("running", None)
         # No owner was recorded: a run started two days ago with no heartbeat is long gone.
         assert store.mark_incomplete_runs("line-1") == [1]
+
+
+STARTER = """
+import sys, time
+from fixture.store import open_store
+time.sleep(max(0.0, float(sys.argv[2]) - time.time()))  # all start at one moment
+with open_store(sys.argv[1]) as store:
+    store.record_design("PW-22", "B", "x.toml", "0" * 64)
+print("opened")
+"""
+
+
+def test_stations_opening_a_new_database_together_all_start(db_url: str) -> None:
+    # The failure this pins: two processes migrating one new PostgreSQL database both created
+    # alembic_version and one died on a unique-key violation. Six processes released at one instant
+    # (common practice, no source: a start barrier by wall clock) must all open it.
+    import subprocess
+    import sys
+    import time
+
+    start_at = time.time() + 5.0
+    children = [subprocess.Popen([sys.executable, "-c", STARTER, db_url, str(start_at)],
+                                 stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True) for _ in range(6)]
+    results = [child.communicate(timeout=120) for child in children]
+    assert [child.returncode for child in children] == [0] * 6, [err[-800:] for _, err in results]
+    assert all(out.strip() == "opened" for out, _ in results)
+    with open_store(db_url) as store:
+        assert current_revision(store.engine) == head_revision()

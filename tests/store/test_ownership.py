@@ -9,6 +9,7 @@ import sys
 from collections.abc import Iterator
 
 import pytest
+from sqlalchemy import text
 
 from fixture.store import Store
 from fixture.store.lease import LeaseHolder, beat, claim_lease, lease_holder, release_lease
@@ -84,8 +85,8 @@ def test_a_run_records_its_owner_and_a_heartbeat_renewed_at_each_step(store: Sto
     set_owner(store, run_id, store.owner.host, store.owner.pid, store.owner.started, NOW - dt.timedelta(days=1))
     store.record_step(run_id, 0, "power-up", "pass", NOW, NOW, "")
     with store.engine.connect() as connection:
-        row = connection.exec_driver_sql(
-            "SELECT owner_host, owner_pid, owner_started, heartbeat_at FROM run WHERE id = ?", (run_id,)).one()
+        row = connection.execute(text(
+            "SELECT owner_host, owner_pid, owner_started, heartbeat_at FROM run WHERE id = :id"), {"id": run_id}).one()
     assert (row[0], row[1], row[2]) == (store.owner.host, os.getpid(), store.owner.started)
     assert str(row[3]) > str((NOW - dt.timedelta(days=1)).replace(tzinfo=None))
 
