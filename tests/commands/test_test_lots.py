@@ -197,3 +197,14 @@ def test_an_expired_counter_the_sequence_measures_with_still_refuses(tmp_path):
     assert "knobline: station fault: counter" in result.stderr and "VLQ-26-04417 was due 2001-01-01" in result.stderr
     with open_store(str(db)) as store:
         assert store.runs(limit=5) == []
+
+
+def test_an_operator_name_too_long_to_store_is_one_line_exit_2_without_sql(tmp_path):
+    # The failure this pins: on PostgreSQL an over-long operator ended the run as a station fault (exit 3)
+    # printing the whole INSERT statement. It is the person's input: exit 2, one line, the field in words.
+    result = CliRunner().invoke(main, ["test", "--serial", "PW22-000001", *LOT_OPTIONS, "--db", str(tmp_path / "r.sqlite"),
+                                       "--operator", "x" * 250], catch_exceptions=False)
+    assert result.exit_code == 2, result.output
+    (line,) = error_lines(result.stderr)
+    assert line.startswith("knobline: error: --operator: expected printable text of at most 200 characters")
+    assert "INSERT" not in result.output

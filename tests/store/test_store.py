@@ -187,3 +187,22 @@ def test_an_unknown_serial_is_a_user_error(store: Store) -> None:
     with pytest.raises(UserInputError, match="NOPE"):
         store.unit("NOPE")
     assert store.previous_runs("NOPE") == []
+
+
+@pytest.mark.parametrize(("field", "kwargs", "words"), [
+    ("operator", {"operator": "o" * 201}, "operator: expected at most 200 characters, found 201"),
+    ("serial", {"serial": "S" * 201}, "serial: expected at most 200 characters, found 201"),
+    ("lot", {"lots": {"c_integrator": "L" * 250}}, "lot of c_integrator: expected at most 200 characters, found 250"),
+])
+def test_text_longer_than_its_column_is_refused_in_words_before_anything_is_written(
+        store: Store, field: str, kwargs: dict, words: str) -> None:
+    # PostgreSQL refuses an over-long varchar with an error quoting the SQL; SQLite stores it whole
+    # (PostgreSQL docs "Character Types"; SQLite FAQ "What is the maximum size of a VARCHAR", from memory).
+    # Either way the person gets one line naming the field, on both databases, and nothing is stored.
+    serial = kwargs.get("serial", "PW22-000777")
+    operator = kwargs.get("operator", "operator")
+    lots = kwargs.get("lots", {"c_integrator": "L-C1"})
+    with pytest.raises(UserInputError) as refused:
+        store.begin_run(serial, lots, "line-1", operator, "0.0-test", SEQUENCE_SHA, DESIGN_SHA)
+    assert str(refused.value) == words and "INSERT" not in str(refused.value)
+    assert store.previous_runs(serial) == []
