@@ -184,7 +184,7 @@ def test_an_expired_scope_the_sequence_does_not_use_is_warned_once_and_recorded_
     with open_store(str(db)) as store:
         run = store.run(json.loads(result.stdout)["run_id"])
     scope = next(i for i in run.instruments if i.role == "scope")
-    assert (scope.certificate, scope.calibration_due) == ("VLQ-26-03981", dt.date(2001, 1, 1))
+    assert (scope.calibration_certificate, scope.calibration_due) == ("VLQ-26-03981", dt.date(2001, 1, 1))
     assert run.summary.expired_calibrations == ()  # the unit was not measured with it
 
 

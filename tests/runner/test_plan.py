@@ -109,7 +109,7 @@ def test_explicit_limits_are_the_tolerance_limits(tmp_path: Path) -> None:
         assert point.limits.tolerance_high == pytest.approx(min(99.0, wc.high.value), rel=1e-12)
         assert point.limits.basis == "explicit"
         if wc.low.value > 1.0:
-            assert "explicit low limit 1 % lies beyond the worst case" in point.limits.note
+            assert "explicit low limit 1.000 % lies beyond the worst case" in point.limits.note
             assert "capped at worst case" in point.limits.note
 
 
@@ -191,7 +191,7 @@ def test_a_gate_too_short_for_any_acceptance_zone_is_a_sequence_problem(tmp_path
     sequence = replace(shipped, steps=(*shipped.steps[:1], wide, *shipped.steps[2:]))
     with pytest.raises(FileProblems) as info:
         compile_plan(sequence, sequence.design, STATION)
-    assert all('steps[1] (knob-matrix "frequency at knob A stops").limits: expected an acceptance zone' in str(p)
+    assert all('step 2 (knob-matrix "frequency at knob A stops").limits: expected an acceptance zone' in str(p)
                for p in info.value.problems)
 
 
