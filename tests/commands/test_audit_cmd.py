@@ -121,13 +121,25 @@ def break_trail(db: Path, statement: str) -> None:
 
 def test_json_keys_are_the_ones_the_help_lists(db: Path) -> None:
     documented = documented_json_keys(audit("--help").stdout, {"or", "null", "with", "verify", "is", "edited",
-                                                               "missing", "unlinked"})
+                                                               "missing", "unlinked", "shortened"})
     listed = json.loads(audit("--db", str(db), "--json").stdout)
     intact = json.loads(audit("--db", str(db), "--verify", "--json").stdout)
     break_trail(db, "DELETE FROM audit_entry WHERE id = 1")
     broken = json.loads(audit("--db", str(db), "--verify", "--json").stdout)
     detail_keys = {k for e in listed["entries"] for k in e["detail"]}  # the detail is the action's own
     assert (all_keys(listed) - detail_keys) | all_keys(intact) | all_keys(broken) == documented
+
+
+def test_verify_with_a_noted_hash_finds_entries_removed_from_the_end(db: Path) -> None:
+    noted = json.loads(audit("--db", str(db), "--verify", "--json").stdout)["head_hash"]
+    assert audit("--db", str(db), "--verify", "--noted", noted).exit_code == 0
+    break_trail(db, "DELETE FROM audit_entry WHERE id = 3")
+    assert audit("--db", str(db), "--verify").exit_code == 0  # the chain alone cannot tell
+    result = audit("--db", str(db), "--verify", "--noted", noted.upper())
+    assert result.exit_code == 1
+    assert result.stdout.startswith(f"AUDIT TRAIL BROKEN at entry 3: no entry has the noted hash {noted}")
+    assert audit("--db", str(db), "--noted", noted).exit_code == 2  # without --verify
+    assert audit("--db", str(db), "--verify", "--noted", "abc").exit_code == 2
 
 
 def test_verify_with_a_filter_or_without_a_database_is_bad_input(db: Path, tmp_path: Path) -> None:

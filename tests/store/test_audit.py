@@ -184,6 +184,29 @@ def test_an_entry_rewritten_with_its_hash_recomputed_breaks_the_next_link(store:
     assert broken is not None and (broken.entry_id, broken.kind) == (4, BreakKind.UNLINKED)
 
 
+def test_entries_removed_from_the_end_show_only_against_a_noted_hash(store: Store) -> None:
+    five_entries(store)
+    noted = check_audit_chain(store).head_hash
+    assert verify_audit_chain(store, noted=audit_trail(store)[2].entry_hash) is None  # any entry still there
+    with plain_client(store) as run:
+        run("DELETE FROM audit_entry WHERE id >= 4")
+    assert verify_audit_chain(store) is None  # the chain alone cannot tell
+    broken = verify_audit_chain(store, noted=noted)
+    assert broken is not None and (broken.entry_id, broken.kind) == (4, BreakKind.SHORTENED)
+    assert "now ends at entry 3" in broken.message
+
+
+def test_the_database_takes_every_action_word_and_no_other(store: Store) -> None:
+    # The migration's word list is frozen apart from the enum; they must agree (common practice, no source).
+    for action in AuditAction:
+        append_audit(store, action, who="Ann", subject=str(action))
+    assert [e.action for e in audit_trail(store)] == [str(a) for a in AuditAction]
+    with pytest.raises(DBAPIError), store.engine.begin() as connection:
+        connection.execute(insert(table_of(AuditEntryRow)).values(
+            id=99, recorded_at=dt.datetime.now(dt.UTC), who="Ann", action="shred", subject="x", detail="{}",
+            previous_hash="1" * 64, entry_hash="2" * 64))
+
+
 def test_the_trail_filters_by_action_subject_and_time(store: Store) -> None:
     five_entries(store)
     middle = dt.datetime.now(dt.UTC)
