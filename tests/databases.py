@@ -17,7 +17,7 @@ from contextlib import contextmanager
 from pathlib import Path
 
 import pytest
-from sqlalchemy import create_engine, text
+from sqlalchemy import Connection, create_engine, text
 from sqlalchemy.engine import make_url
 
 #: the backends a ``database_url`` fixture is parametrised over
@@ -67,3 +67,16 @@ def fresh_database(backend: str, folder: Path) -> Iterator[str]:
             yield url
     else:
         raise ValueError(f"unknown backend {backend!r}; expected one of {', '.join(BACKENDS)}")
+
+
+@contextmanager
+def past_result_triggers(connection: Connection, table: str) -> Iterator[None]:
+    """Let a test change stored results of ``table`` inside ``connection``'s transaction (an older
+    database, a hand edit): on PostgreSQL migration 0005's triggers refuse it, so the table owner
+    disables them (ALTER TABLE ... DISABLE TRIGGER USER) and enables them again; SQLite has none."""
+    postgres = connection.dialect.name == "postgresql"
+    if postgres:
+        connection.execute(text(f'ALTER TABLE "{table}" DISABLE TRIGGER USER'))
+    yield
+    if postgres:
+        connection.execute(text(f'ALTER TABLE "{table}" ENABLE TRIGGER USER'))

@@ -6,7 +6,6 @@ import datetime as dt
 import hashlib
 from collections.abc import Iterator, Mapping, Sequence
 from dataclasses import dataclass, field
-from pathlib import Path
 
 import numpy as np
 import pytest
