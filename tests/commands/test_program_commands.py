@@ -188,6 +188,13 @@ def test_a_production_station_tests_released_programs_and_refuses_a_retired_one(
     assert passed.exit_code == 0, passed.stderr
     assert json.loads(passed.stdout)["certificate"] is not None
     assert "not for shipment" not in passed.stderr
+    engineering = invoke("test", "--serial", "PW22-000902", "--lot", "c_integrator=C1-2611A", "--db", database_url,
+                         "--operator", "olu", "--json")  # the demo bench: an engineering station, its file a draft
+    assert engineering.exit_code == 0, engineering.stderr
+    issued = invoke("certificate", "--all", "--json", "--db", database_url, "--key", str(key.path),
+                    "--out", str(tmp_path / "again"))
+    assert issued.exit_code == 0, issued.stderr
+    assert [c["run_id"] for c in json.loads(issued.stdout)["certificates"]] == [json.loads(passed.stdout)["run_id"]]
     retired = invoke("program", "retire", "demo-sequence", "--by", "Erin Engineer", "--reason", "superseded",
                      "--db", database_url)
     assert retired.exit_code == 0, retired.stderr
