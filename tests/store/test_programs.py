@@ -80,6 +80,15 @@ def test_an_approver_needs_a_key_and_names_are_unique(store: Store) -> None:
     assert person(store, "Ada") is not None and person(store, "Ada").role == "approver"  # type: ignore[union-attr]
 
 
+def test_one_key_belongs_to_one_person(store: Store) -> None:
+    # Else Ada could register as Ada and release as "Cy" with her own key: the second-person rule undone.
+    people(store)
+    with pytest.raises(UserInputError, match="the key of Ada"):
+        add_person(store, "Cy", "approver", public_key_pem=public_key_pem(A_KEY.public_key()),
+                   key_fingerprint=key_fingerprint(A_KEY.public_key()))
+    assert person(store, "Cy") is None
+
+
 def test_release_needs_a_second_approver_and_a_draft(store: Store) -> None:
     people(store)
     own, _ = register_program(store, "design", "d.toml", sha("d"), "d", "Ada")
