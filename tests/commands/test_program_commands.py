@@ -69,8 +69,8 @@ def test_a_production_station_refuses_an_unreleased_sequence_before_powering_any
     release_demo_programs(database_url, tmp_path / "people",
                           {"station": station, "design": DEMO_FILES["design"]})
     if registered:  # a draft: registered by the engineer, never approved
-        assert invoke("program", "register", str(DEMO_FILES["sequence"]), "--by", "Erin Engineer",
-                      "--db", database_url).exit_code == 0
+        assert invoke("program", "register", str(DEMO_FILES["sequence"]), "--by", "Erin Engineer", "--key",
+                      str(tmp_path / "people" / "engineer.pem"), "--db", database_url).exit_code == 0
     result = run_unit(database_url, "--station", str(station))
     assert result.exit_code == 2
     lines = result.stderr.strip().splitlines()
@@ -87,7 +87,8 @@ def test_a_production_station_refuses_an_unreleased_sequence_before_powering_any
 def test_release_by_the_person_who_registered_it_is_refused(database_url: str, tmp_path: Path) -> None:
     assert invoke("person", "add", "Ada", "--role", "approver", "--new-key", str(tmp_path / "ada.pem"),
                   "--db", database_url).exit_code == 0
-    assert invoke("program", "register", "demo-sequence", "--by", "Ada", "--db", database_url).exit_code == 0
+    assert invoke("program", "register", "demo-sequence", "--by", "Ada", "--key", str(tmp_path / "ada.pem"),
+                  "--db", database_url).exit_code == 0
     result = invoke("program", "release", "demo-sequence", "--approver", "Ada", "--key", str(tmp_path / "ada.pem"),
                     "--reason", "my own work", "--db", database_url)
     assert result.exit_code == 2
@@ -102,8 +103,16 @@ def test_person_and_program_commands_release_with_an_encrypted_key_and_say_what_
     added = invoke("person", "add", "Bo", "--role", "approver", "--new-key", str(tmp_path / "bo.pem"),
                    "--passphrase", "--json", *db, stdin="s3cret\ns3cret\n")
     assert added.exit_code == 0, added.stderr
-    assert invoke("person", "add", "Erin", "--role", "engineer", *db).exit_code == 0
-    registered = invoke("program", "register", "demo-panel", "--by", "Erin", "--json", *db)
+    assert invoke("person", "add", "Erin", "--role", "engineer", *db).exit_code == 2  # an engineer needs a key
+    assert invoke("person", "add", "Erin", "--role", "engineer", "--new-key", str(tmp_path / "erin.pem"),
+                  *db).exit_code == 0
+    as_bo = invoke("program", "register", "demo-panel", "--by", "Erin", "--key", str(tmp_path / "bo.pem"), *db,
+                   stdin="s3cret\n")  # Bo cannot register in Erin's name
+    assert as_bo.exit_code == 2 and "expected Erin's key" in as_bo.stderr
+    registered = invoke("program", "register", "demo-panel", "--by", "Erin", "--key", str(tmp_path / "erin.pem"),
+                        "--json", *db)
+    assert registered.exit_code == 0, registered.stderr
+    assert json.loads(registered.stdout)["registration_verified"] is True
     wrong = invoke("program", "release", "demo-panel", "--approver", "Bo", "--key", str(tmp_path / "bo.pem"),
                    "--reason", "limits checked", *db, stdin="guess\n")
     assert wrong.exit_code == 2 and "passphrase" in wrong.stderr
@@ -139,9 +148,10 @@ def test_a_changed_file_is_not_released(database_url: str, tmp_path: Path, no_po
 
 
 @pytest.mark.parametrize("tamper, says", [
-    ("UPDATE program_approval SET reason = 'a reason nobody signed'", "does not verify"),
-    ("UPDATE program_approval SET signature = :zero", "does not verify"),
-    ("DELETE FROM program_approval", "marked released but has no approval"),
+    ("UPDATE program_approval SET reason = 'a reason nobody signed' WHERE program_id = :id", "does not verify"),
+    ("UPDATE program_approval SET signature = :zero WHERE program_id = :id", "does not verify"),
+    ("DELETE FROM program_approval WHERE program_id = :id", "marked released but has no approval"),
+    ("UPDATE program SET file_name = 'other.toml' WHERE id = :id", "registration signature does not verify"),
 ])
 def test_a_tampered_release_is_not_released(database_url: str, tmp_path: Path, no_power, tamper: str,
                                             says: str) -> None:
@@ -150,14 +160,15 @@ def test_a_tampered_release_is_not_released(database_url: str, tmp_path: Path, n
                                                               "sequence": DEMO_FILES["sequence"]})
     with open_store(database_url) as store, store.engine.begin() as connection:
         sequence_id = connection.execute(text("SELECT id FROM program WHERE kind = 'sequence'")).scalar_one()
-        connection.execute(text(f"{tamper} WHERE program_id = :id"), {"id": sequence_id, "zero": "00" * 64})
+        connection.execute(text(tamper), {"id": sequence_id, "zero": "00" * 64})
     result = run_unit(database_url, "--station", str(station))
     assert result.exit_code == 2
     assert says in result.stderr and f"sha256 {sha256_of(DEMO_FILES['sequence'])}" in result.stderr
     assert no_power == []
     listed = json.loads(invoke("program", "list", "--json", "--db", database_url).stdout)["programs"]
     sequence = next(p for p in listed if p["kind"] == "sequence")
-    assert sequence["approval"] is None or sequence["approval"]["verified"] is False
+    assert sequence["approval"] is None or sequence["approval"]["verified"] is False \
+        or sequence["registration_verified"] is False
 
 
 def test_an_engineering_run_of_drafts_is_marked_and_gets_no_certificate(database_url: str, tmp_path: Path) -> None:

@@ -26,8 +26,11 @@ from fixture.reporting.person_keys import (
 from fixture.reporting.release_signature import (
     RELEASED_FOR_PRODUCTION,
     approval_problem,
+    registration_payload,
+    registration_problem,
     release_payload,
     release_problem,
+    sign_registration,
     sign_release,
 )
 from fixture.store.programs import PersonRecord, ProgramRecord
@@ -39,6 +42,7 @@ RFC8032_T1_SIGNATURE = ("e5564300c360ac729086e2cc806e828a84877f1eb8e5d974d873e06
                         "fb8821590a33bacc61e39701cf9b46bd25bf5f0595bbe24655141438e7a100b")
 
 NOW = dt.datetime(2026, 12, 4, 6, 30, 15, tzinfo=dt.UTC)
+ERIN_KEY = ed25519.Ed25519PrivateKey.generate()
 
 
 def test_signing_gives_rfc_8032_test_vector_1() -> None:
@@ -91,9 +95,13 @@ def test_the_signed_payload_is_the_documented_canonical_json() -> None:
 
 
 def program(**changes: object) -> ProgramRecord:
+    """A program registered (and signed) by Erin, with ``changes`` made after signing."""
+    registration = sign_registration(ERIN_KEY, "sequence", "s.toml", "cd" * 32, "Erin", now=NOW)
     base = ProgramRecord(program_id=1, kind="sequence", file_name="s.toml", sha256="cd" * 32, version=2,
                          state="draft", registered_by="Erin", registered_at=NOW, approval=None, retired_by=None,
-                         retired_at=None, retire_reason=None)
+                         retired_at=None, retire_reason=None,
+                         registration_key_fingerprint=registration.key_fingerprint,
+                         registration_signature_hex=registration.signature_hex)
     return dataclasses.replace(base, **changes)  # type: ignore[arg-type]
 
 
@@ -101,12 +109,37 @@ def approver(key: ed25519.Ed25519PrivateKey, name: str = "Ada", role: str = "app
     return PersonRecord(name, role, public_key_pem(key.public_key()), key_fingerprint(key.public_key()), NOW)
 
 
+ERIN = approver(ERIN_KEY, "Erin", "engineer")
+
+
 def test_a_release_verifies_against_the_approvers_stored_key() -> None:
     key = ed25519.Ed25519PrivateKey.generate()
     approval = sign_release(key, program(), "Ada", "first release", now=NOW)
     released = program(state="released", approval=approval)
     assert approval.signed_at == NOW and approval.meaning == RELEASED_FOR_PRODUCTION
-    assert release_problem(released, approver(key)) is None
+    assert release_problem(released, approver(key), ERIN) is None
+    assert registration_problem(program(), ERIN) is None
+
+
+@pytest.mark.parametrize("field, value", [
+    ("registered_by", "Ada"), ("registered_at", NOW + dt.timedelta(seconds=1)), ("file_name", "t.toml"),
+    ("sha256", "ce" * 32), ("registration_signature_hex", "00" * 64)])
+def test_a_changed_registration_does_not_verify(field: str, value: object) -> None:
+    # Naming another registrant afterwards (to approve one's own file) breaks the registrant's signature.
+    key = ed25519.Ed25519PrivateKey.generate()
+    changed = program(**{field: value})
+    registrant = approver(ERIN_KEY, name=changed.registered_by, role="engineer")
+    assert "registration signature does not verify" in (registration_problem(changed, registrant) or "")
+    released = dataclasses.replace(changed, state="released",
+                                   approval=sign_release(key, changed, "Ada", "ok", now=NOW))
+    assert release_problem(released, approver(key), registrant) is not None
+
+
+def test_the_registration_payload_is_the_documented_canonical_json() -> None:
+    # Our own format (fixture/reporting/release_signature.py docstring).
+    assert registration_payload("design", "d.toml", "ab" * 32, "Erin", NOW) == (
+        '{"file_name":"d.toml","format":"knobline-registration/1","kind":"design",'
+        f'"registered_at":"2026-12-04T06:30:15Z","registered_by":"Erin","sha256":"{"ab" * 32}"}}').encode()
 
 
 @pytest.mark.parametrize("field, value", [
@@ -132,8 +165,10 @@ def test_a_release_signed_by_another_key_or_approved_by_its_registrant_does_not_
     key, other = ed25519.Ed25519PrivateKey.generate(), ed25519.Ed25519PrivateKey.generate()
     approval = sign_release(other, program(), "Ada", "first release", now=NOW)
     assert "does not verify" in (approval_problem(program(), approval, approver(key)) or "")
-    own = sign_release(key, program(registered_by="Ada"), "Ada", "mine", now=NOW)
-    assert "who registered it" in (approval_problem(program(registered_by="Ada"), own, approver(key)) or "")
+    own = sign_release(ERIN_KEY, program(), "Ada", "mine", now=NOW)  # the registrant's key under another name
+    assert "key that registered it" in (approval_problem(program(), own, approver(ERIN_KEY)) or "")
+    assert "key that registered it" in (approval_problem(program(registered_by="Ada"), approval,
+                                                         approver(other)) or "")
     assert "role engineer" in (approval_problem(program(), sign_release(key, program(), "Ada", "x", now=NOW),
                                                 approver(key, role="engineer")) or "")
-    assert release_problem(program(state="draft"), approver(key)) == "it is draft"
+    assert release_problem(program(state="draft"), approver(key), ERIN) == "it is draft"
