@@ -12,9 +12,12 @@ from fixture.reporting.signing import public_certificate_name, station_key
 from fixture.store import open_store
 from tests.demo_lots import LOT_OPTIONS
 from tests.json_keys import all_keys, documented_json_keys
+from tests.programs import release_demo_programs
 
 
 def run_test(tmp_path: Path, *args: str):
+    # Certificates are for runs of released programs only (README "Released test programs").
+    release_demo_programs(str(tmp_path / "r.sqlite"), tmp_path / "people")
     return CliRunner().invoke(main, ["test", "--serial", "PW22-000901", *LOT_OPTIONS,
                                      "--db", str(tmp_path / "r.sqlite"), "--operator", "ana", *args],
                               catch_exceptions=False)
@@ -49,7 +52,8 @@ def test_the_banner_comes_before_the_certificate_line(tmp_path: Path) -> None:
 def test_a_missing_key_is_bad_input_before_the_unit_is_tested(tmp_path: Path) -> None:
     result = run_test(tmp_path, "--certificates", str(tmp_path / "certs"), "--key", str(tmp_path / "nokey.pem"))
     assert result.exit_code == 2
-    assert not (tmp_path / "r.sqlite").exists()  # nothing was tested, nothing stored
+    with open_store(str(tmp_path / "r.sqlite")) as store:
+        assert store.runs() == []  # nothing was tested, nothing stored
 
 
 def test_pdf_or_key_without_certificates_is_bad_input(tmp_path: Path) -> None:
