@@ -162,3 +162,29 @@ def test_signed_at_keeps_its_second_across_the_database(store: Store, tmp_path: 
     stored = program_by_hash(store, "design", sha("t"))
     assert stored is not None and stored.approval is not None
     assert stored.approval.signed_at == dt.datetime(2026, 12, 4, 6, 59, 59, tzinfo=dt.UTC)
+
+
+def test_releases_approvals_limit_changes_and_retirements_are_on_the_audit_trail(store: Store) -> None:
+    # Issue 12: every release, approval, limit change and retirement is an audit entry (who, what, the
+    # file hashes before and after), written in the change's own transaction; the chain stays intact.
+    from fixture.store.audit import audit_trail
+    from fixture.store.audit_chain import verify_audit_chain
+
+    people(store)
+    first, _ = register(store, "sequence", "s.toml", "s v1", "Erin")
+    record_release(store, first.program_id, sign_release(A_KEY, first, "Ada", "first release"))
+    second, _ = register(store, "sequence", "s.toml", "s v2", "Erin")
+    with pytest.raises(UserInputError):  # a refused release leaves no entry
+        record_release(store, second.program_id, sign_release(A_KEY, second, "Erin", "not an approver"))
+    record_release(store, second.program_id, sign_release(B_KEY, second, "Bo", "wider duty limits"))
+    retire_program(store, first.program_id, "Erin", "superseded by version 2")
+    trail = [(e.action, e.who, e.subject, e.before_sha256, e.after_sha256) for e in audit_trail(store)]
+    assert trail == [
+        ("approval", "Ada", "sequence s.toml version 1", None, sha("s v1")),
+        ("release", "Ada", "sequence s.toml version 1", None, sha("s v1")),
+        ("approval", "Bo", "sequence s.toml version 2", None, sha("s v2")),
+        ("release", "Bo", "sequence s.toml version 2", sha("s v1"), sha("s v2")),
+        ("limit-change", "Bo", "sequence s.toml version 2", sha("s v1"), sha("s v2")),
+        ("retirement", "Erin", "sequence s.toml version 1", sha("s v1"), None),
+    ]
+    assert verify_audit_chain(store) is None
