@@ -11,12 +11,16 @@ from pathlib import Path
 import pytest
 from click.testing import CliRunner
 
+from tests.demo_lots import LOT_OPTIONS
 from fixture.cli import main
 from fixture.reporting.signing import station_key
 from fixture.store import DB_ENV_VAR
 from tests.json_keys import all_keys, documented_json_keys
+from tests.programs import release_demo_programs
 
 SERIAL = "PW22-000901"
+#: entries before the units were tested: the three demo files released, an approval and a release each
+BASE = 6
 
 
 @pytest.fixture(scope="module")
@@ -24,8 +28,10 @@ def tested(tmp_path_factory: pytest.TempPathFactory) -> Path:
     """A database where one unit was tested twice with ``--certificates``: a retest, two certificates."""
     folder = tmp_path_factory.mktemp("audit")
     key = station_key(folder / "keys" / "station-key.pem", create_missing=True)
+    # certificates are for runs of released programs (README "Released test programs")
+    release_demo_programs(str(folder / "r.sqlite"), folder / "people")
     for operator in ("ana", "ben"):
-        result = CliRunner().invoke(main, ["test", "--serial", SERIAL, "--lot", "c_integrator=C1-2611A",
+        result = CliRunner().invoke(main, ["test", "--serial", SERIAL, *LOT_OPTIONS,
                                            "--db", str(folder / "r.sqlite"), "--operator", operator,
                                            "--certificates", str(folder / "certs"), "--key", str(key.path)],
                                     catch_exceptions=False)
@@ -49,8 +55,10 @@ def test_a_certificate_issue_and_a_retest_are_on_the_trail_in_order(db: Path, te
     result = audit("--db", str(db), "--json")
     assert result.exit_code == 0, result.stderr
     entries = json.loads(result.stdout)["entries"]
-    assert [(e["id"], e["action"]) for e in entries] == [(1, "certificate-issue"), (2, "retest"),
-                                                        (3, "certificate-issue")]
+    assert [e["action"] for e in entries[:BASE]] == ["approval", "release"] * 3
+    entries = entries[BASE:]
+    assert [(e["id"], e["action"]) for e in entries] == [(BASE + 1, "certificate-issue"), (BASE + 2, "retest"),
+                                                        (BASE + 3, "certificate-issue")]
     first_cert, retest, second_cert = entries
     assert (retest["who"], retest["subject"], retest["detail"]["retest_of"]) == ("ben", SERIAL, 1)
     assert retest["before_sha256"] == retest["after_sha256"]  # the same sequence file both times
@@ -62,11 +70,11 @@ def test_a_certificate_issue_and_a_retest_are_on_the_trail_in_order(db: Path, te
 
 
 def test_the_text_trail_is_in_words_oldest_first(db: Path) -> None:
-    result = audit("--db", str(db))
+    result = audit("--db", str(db), "--limit", "3")
     assert result.exit_code == 0, result.stderr
     lines = result.stdout.splitlines()
-    assert lines[0].startswith("entry 1  ") and "certificate issued by" in lines[0]
-    assert lines[2].startswith("entry 2  ") and lines[2].endswith("unit retested by ben")
+    assert lines[0].startswith(f"entry {BASE + 1}  ") and "certificate issued by" in lines[0]
+    assert lines[2].startswith(f"entry {BASE + 2}  ") and lines[2].endswith("unit retested by ben")
     assert lines[3].startswith(f"  about {SERIAL}: SHA-256 before ")
     assert "retest of 1" in lines[3] and "earlier verdict pass" in lines[3]
     assert "retest_of" not in result.stdout  # keys are turned into words
@@ -78,26 +86,28 @@ def test_the_trail_filters_by_action_subject_since_and_limit(db: Path) -> None:
         assert result.exit_code == 0, result.stderr
         return [e["id"] for e in json.loads(result.stdout)["entries"]]
 
-    assert ids("--action", "retest") == [2]
-    assert ids("--subject", SERIAL) == [2]
-    assert ids("--limit", "2") == [2, 3]
-    assert ids("--since", "2000-01-01") == [1, 2, 3]
+    assert ids("--action", "retest") == [BASE + 2]
+    assert ids("--subject", SERIAL) == [BASE + 2]
+    assert ids("--limit", "2") == [BASE + 2, BASE + 3]
+    assert ids("--action", "release") == [2, 4, 6]
+    assert ids("--since", "2000-01-01") == list(range(1, BASE + 4))
     assert ids("--since", "2999-01-01T00:00") == []
-    assert "no audit entries match" in audit("--db", str(db), "--action", "release").stdout
+    assert "no audit entries match" in audit("--db", str(db), "--action", "retirement").stdout
 
 
 def test_verify_says_intact_with_the_latest_hash_and_exits_0(db: Path) -> None:
     result = audit("--db", str(db), "--verify")
     assert result.exit_code == 0, result.stderr
     head = json.loads(audit("--db", str(db), "--json").stdout)["entries"][-1]["entry_hash"]
-    assert result.stdout.startswith("audit trail intact: 3 entries")
+    assert result.stdout.startswith(f"audit trail intact: {BASE + 3} entries")
     assert head in result.stdout
 
 
 @pytest.mark.parametrize("statement, entry, kind", [
-    ("UPDATE audit_entry SET who = 'mallory' WHERE id = 2", 2, "edited"),
+    (f"UPDATE audit_entry SET who = 'mallory' WHERE id = {BASE + 2}", BASE + 2, "edited"),
+    (f"UPDATE audit_entry SET detail = '{{}}' WHERE id = {BASE + 1}", BASE + 1, "edited"),
     ("UPDATE audit_entry SET detail = '{}' WHERE id = 1", 1, "edited"),
-    ("DELETE FROM audit_entry WHERE id = 2", 2, "missing"),
+    (f"DELETE FROM audit_entry WHERE id = {BASE + 2}", BASE + 2, "missing"),
 ])
 def test_verify_names_the_first_broken_link_after_a_plain_sqlite_client_changed_the_trail(
         db: Path, statement: str, entry: int, kind: str) -> None:
@@ -133,11 +143,11 @@ def test_json_keys_are_the_ones_the_help_lists(db: Path) -> None:
 def test_verify_with_a_noted_hash_finds_entries_removed_from_the_end(db: Path) -> None:
     noted = json.loads(audit("--db", str(db), "--verify", "--json").stdout)["head_hash"]
     assert audit("--db", str(db), "--verify", "--noted", noted).exit_code == 0
-    break_trail(db, "DELETE FROM audit_entry WHERE id = 3")
+    break_trail(db, f"DELETE FROM audit_entry WHERE id = {BASE + 3}")
     assert audit("--db", str(db), "--verify").exit_code == 0  # the chain alone cannot tell
     result = audit("--db", str(db), "--verify", "--noted", noted.upper())
     assert result.exit_code == 1
-    assert result.stdout.startswith(f"AUDIT TRAIL BROKEN at entry 3: no entry has the noted hash {noted}")
+    assert result.stdout.startswith(f"AUDIT TRAIL BROKEN at entry {BASE + 3}: no entry has the noted hash {noted}")
     assert audit("--db", str(db), "--noted", noted).exit_code == 2  # without --verify
     assert audit("--db", str(db), "--verify", "--noted", "abc").exit_code == 2
 

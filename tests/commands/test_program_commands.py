@@ -16,6 +16,7 @@ import pytest
 from click.testing import CliRunner
 from sqlalchemy import text
 
+from tests.demo_lots import LOT_OPTIONS
 from fixture.cli import main
 from fixture.files.toml_reader import FileProblems
 from fixture.files.station_file import load_station
@@ -46,7 +47,7 @@ def sha256_of(path: Path) -> str:
 
 
 def run_unit(database_url: str, *args: str):
-    return invoke("test", "--serial", SERIAL, "--lot", "c_integrator=C1-2611A", "--db", database_url,
+    return invoke("test", "--serial", SERIAL, *LOT_OPTIONS, "--db", database_url,
                   "--operator", "olu", *args)
 
 
@@ -199,7 +200,7 @@ def test_a_production_station_tests_released_programs_and_refuses_a_retired_one(
     assert passed.exit_code == 0, passed.stderr
     assert json.loads(passed.stdout)["certificate"] is not None
     assert "not for shipment" not in passed.stderr
-    engineering = invoke("test", "--serial", "PW22-000902", "--lot", "c_integrator=C1-2611A", "--db", database_url,
+    engineering = invoke("test", "--serial", "PW22-000902", *LOT_OPTIONS, "--db", database_url,
                          "--operator", "olu", "--json")  # the demo bench: an engineering station, its file a draft
     assert engineering.exit_code == 0, engineering.stderr
     issued = invoke("certificate", "--all", "--json", "--db", database_url, "--key", str(key.path),
