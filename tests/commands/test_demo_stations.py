@@ -21,20 +21,23 @@ from fixture.store.models import RunRow, StationRow, UnitRow
 LANES = ("PW-22 end-of-line bench 2, lane 1", "PW-22 end-of-line bench 2, lane 2", "PW-22 end-of-line bench 2, lane 3")
 
 
-def _stored_runs(db: Path) -> list[tuple[int, str, str, str]]:
-    """(run id, serial, verdict, station name) of every run in the database."""
+def _stored_runs(db: Path | str) -> list[tuple[int, str, str, str]]:
+    """(run id, serial, verdict, station name) of every run in the database at ``db`` (a path or URL)."""
     with open_store(str(db)) as store, store.engine.connect() as connection:
         return [tuple(row) for row in connection.execute(
             select(RunRow.id, UnitRow.serial, RunRow.verdict, StationRow.name)
             .join(UnitRow, UnitRow.id == RunRow.unit_id).join(StationRow, StationRow.id == RunRow.station_id)).all()]
 
 
-def test_three_stations_test_every_planned_serial_once_and_their_yields_add_up_to_the_batch(tmp_path: Path) -> None:
+def test_three_stations_test_every_planned_serial_once_and_their_yields_add_up_to_the_batch(
+        tmp_path: Path, database_url: str) -> None:
     # The claim (issue 12): stations sharing one line database split a batch without losing or repeating
     # a unit. First-pass yield = units passed at first test / units (common practice, no source), so the
     # stations' passes and units add up to the batch's.
+    # on SQLite and on PostgreSQL (database_url: both, tests/conftest.py)
     result = CliRunner().invoke(main, ["demo", "--stations", "3", "--units", "12", "--seed", "5", "--out",
-                                       str(tmp_path), "--no-reports", "--json"], catch_exceptions=False)
+                                       str(tmp_path), "--db", database_url, "--no-reports", "--json"],
+                                catch_exceptions=False)
     assert result.exit_code == 0, result.stderr
     data = json.loads(result.stdout)
     planned = [f"PW22-{n:06d}" for n in range(1, 13)]  # the demo sequence's pattern PW22-[0-9]{6}, from 1
@@ -51,7 +54,7 @@ def test_three_stations_test_every_planned_serial_once_and_their_yields_add_up_t
     assert all(s["self_check"] and s["self_check"]["verdict"] == "pass" for s in stations)
     assert len({s["self_check"]["id"] for s in stations}) == 3
     # the database agrees: one run per serial, each on the station the summary says
-    stored = _stored_runs(tmp_path / "results.sqlite")
+    stored = _stored_runs(database_url)
     assert sorted((serial, name, run_id) for run_id, serial, _, name in stored) == \
         sorted((r["serial"], r["station"], r["run_id"]) for r in data["runs"])
 
