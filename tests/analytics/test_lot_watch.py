@@ -240,3 +240,58 @@ def test_a_step_computed_from_a_stale_chart_is_computed_again_from_the_stored_on
           for step in store.run(second).steps for m in step.measurements]
     step_run(store, design, second, lots, diagnose_unit(design, rs), stored={})  # as if read before the first
     assert {e.units + e.left_out for e in run_lot_watch(store, second)} == {2}  # continued, not restarted
+
+
+def test_two_stations_stepping_one_chart_at_once_never_fork_it(store: Store, design, db_url: str) -> None:
+    # Under PostgreSQL's READ COMMITTED two writers would both read the same latest step and both insert
+    # a continuation of it: the chart forks and a unit's step is lost (PostgreSQL docs, "Transaction
+    # Isolation", from memory). Played deterministically: the first writer pauses after its read, inside
+    # its transaction; the second must wait and then find the chart moved.
+    import threading
+
+    import fixture.store.lot_watch as lot_watch_store
+    from fixture.store import open_store
+
+    if store.engine.dialect.name == "sqlite":
+        pytest.skip("SQLite's BEGIN IMMEDIATE serialises the two writers before either reads")
+    plan = plan_batch(design, units=3, seed=3, shift=0.0, defect_fraction=0.0)
+    (first, lots), (second, _), (third, _) = _record(store, design, plan, seed=3)
+    watch_run(store, design, first, lots)
+    entries = run_lot_watch(store, first)
+    previous = {(e.part_key, e.lot_code): e.row_id for e in entries}
+    real_latest, read, go = lot_watch_store._latest, threading.Event(), threading.Event()
+
+    def latest_then_pause(s, keys):
+        found = real_latest(s, keys)
+        if threading.current_thread().name == "first":
+            read.set()
+            go.wait(10)
+        return found
+
+    lot_watch_store._latest = latest_then_pause
+    outcome: dict[str, object] = {}
+
+    def step(name: str, run_id: int) -> None:
+        with open_store(db_url) as other:
+            try:
+                record_lot_watch(other, run_id, entries, previous)
+                outcome[name] = "written"
+            except ChartMoved:
+                outcome[name] = "moved"
+
+    try:
+        a = threading.Thread(target=step, args=("first", second), name="first")
+        a.start()
+        assert read.wait(10)
+        b = threading.Thread(target=step, args=("second", third), name="second")
+        b.start()
+        b.join(1.0)
+        assert b.is_alive(), "the second writer went ahead while the first held the chart"
+        go.set()
+        a.join(10)
+        b.join(10)
+    finally:
+        go.set()
+        lot_watch_store._latest = real_latest
+    assert outcome == {"first": "written", "second": "moved"}
+    assert run_lot_watch(store, third) == []
