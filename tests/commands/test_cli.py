@@ -334,3 +334,13 @@ def test_a_count_of_one_takes_the_singular_noun(run) -> None:
     assert "1 simulated unit," in one.stdout
     two = run("decode", "--samples", "2")
     assert "2 simulated units," in two.stdout
+
+
+def test_limits_notes_name_the_quantity_in_words_not_its_key() -> None:
+    # The RSS band of the demo's knob A 0 % frequency is capped at the worst case, which adds a note
+    # (tests/model/test_limit_caps.py); a person reads "Frequency at A 0 %", never "frequency_hz".
+    result = CliRunner().invoke(main, ["limits", "--method", "rss"])
+    assert result.exit_code == 0, result.stderr
+    notes = [ln for ln in result.stdout.splitlines() if "capped at worst case" in ln]
+    assert notes and all("_hz" not in ln and "_pct" not in ln for ln in notes)
+    assert any("Frequency at A 0 %" in ln for ln in notes)
