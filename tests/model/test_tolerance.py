@@ -162,3 +162,10 @@ def test_limits_table_rows_carry_nominal_low_high_and_narrow_to_the_spec(demo) -
             assert row.predicted_yield is not None
     shares = [c.share for c in table.rows[0].contributors]
     assert shares == sorted(shares, reverse=True) and 0 < sum(shares) <= 1.0 + 1e-12
+
+
+def test_wilson_interval_reaches_exactly_1_at_100_percent_and_0_at_none() -> None:
+    # Wilson (1927): at p = 1 the upper bound is 1 and at p = 0 the lower bound is 0, exactly
+    # (centre + half = 1 algebraically); a report must not print 99.99999999999998 %.
+    assert McYield(100_000, 100_000).interval(0.95)[1] == 1.0
+    assert McYield(0, 100_000).interval(0.95)[0] == 0.0
