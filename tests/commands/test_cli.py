@@ -251,7 +251,7 @@ def test_station_identifies_every_instrument_of_the_simulated_bench(run) -> None
 
 
 def test_station_with_an_expired_instrument_is_a_station_fault(run) -> None:
-    result = run("station", "--on", "2027-03-15")
+    result = run("station", "--on", "2028-03-15")
     assert result.exit_code == 3
     assert "knobline: station fault: scope" in result.stderr and "VLQ-26-03981" in result.stderr
 

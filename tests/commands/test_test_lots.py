@@ -173,9 +173,9 @@ def station_expired(tmp_path: Path, due: str) -> Path:
 
 def test_an_expired_scope_the_sequence_does_not_use_is_warned_once_and_recorded_not_refused(tmp_path):
     # The demo sequence measures with the counter (and needs supply and actuator); the scope (due
-    # 2027-02-28 in the demo station, set long past here) is not used, so testing goes on.
+    # 2028-02-28 in the demo station, set long past here) is not used, so testing goes on.
     db = tmp_path / "r.sqlite"
-    result = run_test("--serial", "PW22-000001", *LOT_OPTIONS, "--station", str(station_expired(tmp_path, "2027-02-28")),
+    result = run_test("--serial", "PW22-000001", *LOT_OPTIONS, "--station", str(station_expired(tmp_path, "2028-02-28")),
                       "--db", str(db), "--json")
     assert result.exit_code == 0, result.stderr
     warnings = [line for line in result.stderr.splitlines() if line.startswith("knobline: warning:")]
@@ -190,7 +190,7 @@ def test_an_expired_scope_the_sequence_does_not_use_is_warned_once_and_recorded_
 
 def test_an_expired_counter_the_sequence_measures_with_still_refuses(tmp_path):
     db = tmp_path / "r.sqlite"
-    result = run_test("--serial", "PW22-000001", *LOT_OPTIONS, "--station", str(station_expired(tmp_path, "2027-04-30")),
+    result = run_test("--serial", "PW22-000001", *LOT_OPTIONS, "--station", str(station_expired(tmp_path, "2028-04-30")),
                       "--db", str(db))
     # exit 3: a station fault, never a verdict on the unit (README "Exit codes")
     assert result.exit_code == 3, result.output

@@ -68,26 +68,26 @@ def test_demo_station_maps_every_role_to_a_resource_and_profile() -> None:
     assert set(config.instruments) == {"counter", "scope", "supply", "actuator"}
     for entry in config.instruments.values():
         assert entry.resource and entry.profile and entry.simulated
-    assert config.instruments["counter"].calibration.due == datetime.date(2027, 4, 30)
+    assert config.instruments["counter"].calibration.due == datetime.date(2028, 4, 30)
     assert config.instruments["actuator"].options["knob_a_travel_deg"] == 270.0
 
 
 def test_testing_with_an_expired_instrument_is_refused(tmp_path: Path) -> None:
     config = load_station(DEMO)
-    with pytest.raises(CalibrationExpired, match="VLQ-26-03981 was due 2027-02-28"):
-        config.require_calibrated(datetime.date(2027, 3, 1))
-    assert config.require_calibrated(datetime.date(2027, 2, 28)) == []  # due day itself is still in
+    with pytest.raises(CalibrationExpired, match="VLQ-26-03981 was due 2028-02-28"):
+        config.require_calibrated(datetime.date(2028, 3, 1))
+    assert config.require_calibrated(datetime.date(2028, 2, 28)) == []  # due day itself is still in
 
 
 def test_an_allowed_expired_instrument_is_returned_for_the_record(tmp_path: Path) -> None:
     config = load_station(variant(tmp_path, "allow_expired_calibration = false", "allow_expired_calibration = true"))
-    expired = config.require_calibrated(datetime.date(2027, 5, 1))
+    expired = config.require_calibrated(datetime.date(2028, 5, 1))
     assert sorted(s.role for s in expired) == ["counter", "scope", "supply"]
     assert all(s.allowed for s in expired)
 
 
 def test_due_date_must_be_a_toml_date(tmp_path: Path) -> None:
-    line = only_problem(variant(tmp_path, "due = 2027-04-30\nlab", 'due = "next spring"\nlab'))
+    line = only_problem(variant(tmp_path, "due = 2028-04-30\nlab", 'due = "next spring"\nlab'))
     assert "instruments.counter.calibration.due: expected a TOML date such as 2027-03-31" in line
 
 
@@ -115,23 +115,23 @@ def test_a_nonsense_record_length_is_refused_on_a_counter_station_too(tmp_path: 
 
 def test_a_calibration_due_with_a_time_is_named_as_a_date_and_time_not_a_python_repr(tmp_path: Path) -> None:
     # TOML 1.0 "Local Date-Time" (toml.io): 2027-04-30T10:00:00 is a date and a time, not a date.
-    line = only_problem(variant(tmp_path, "due = 2027-04-30\nlab", "due = 2027-04-30T10:00:00\nlab"))
+    line = only_problem(variant(tmp_path, "due = 2028-04-30\nlab", "due = 2027-04-30T10:00:00\nlab"))
     assert "calibration.due" in line and "2027-04-30 10:00:00" in line and "datetime" not in line
 
 
 def test_an_expired_instrument_the_work_does_not_use_does_not_stop_it(tmp_path: Path) -> None:
-    # Demo station: scope due 2027-02-28, counter and supply 2027-04-30. A sequence reading with the
+    # Demo station: scope due 2028-02-28, counter and supply 2028-04-30. A sequence reading with the
     # counter only does not measure with the scope, so the scope's calibration cannot bear on a verdict.
     config = load_station(DEMO)
     uses = ("counter", "supply", "actuator")
-    (scope,) = config.require_calibrated(datetime.date(2027, 3, 1), uses)
-    assert (scope.role, scope.used, scope.due) == ("scope", False, datetime.date(2027, 2, 28))
-    assert "VLQ-26-03981 was due 2027-02-28" in scope.unused_warning and "does not use it" in scope.unused_warning
+    (scope,) = config.require_calibrated(datetime.date(2028, 3, 1), uses)
+    assert (scope.role, scope.used, scope.due) == ("scope", False, datetime.date(2028, 2, 28))
+    assert "VLQ-26-03981 was due 2028-02-28" in scope.unused_warning and "does not use it" in scope.unused_warning
     # ... while an expired instrument it uses still refuses, naming only what stops it
     with pytest.raises(CalibrationExpired) as info:
-        config.require_calibrated(datetime.date(2027, 5, 1), uses)
+        config.require_calibrated(datetime.date(2028, 5, 1), uses)
     assert "counter" in info.value.message and "supply" in info.value.message
     assert "scope" not in info.value.message
     # without a sequence (knobline station) every instrument counts, as before
     with pytest.raises(CalibrationExpired, match="VLQ-26-03981"):
-        config.require_calibrated(datetime.date(2027, 3, 1))
+        config.require_calibrated(datetime.date(2028, 3, 1))

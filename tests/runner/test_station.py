@@ -28,7 +28,7 @@ def test_an_expired_instrument_stops_the_station_before_anything_is_opened(monke
     opened = []
     monkeypatch.setattr("fixture.runner.station.open_instrument", lambda *a, **k: opened.append(a))
     with pytest.raises(CalibrationExpired):
-        open_station(config, today=dt.date(2027, 3, 1))
+        open_station(config, today=dt.date(2028, 3, 1))
     assert opened == []
 
 
@@ -57,10 +57,10 @@ def test_typed_role_accessors_give_each_driver_and_a_missing_role_is_a_fixture_f
 
 
 def test_an_expired_instrument_outside_the_sequences_roles_is_opened_and_identified_for_the_record() -> None:
-    # The scope (due 2027-02-28) is past due on 2027-03-01; a counter sequence does not use it, so the
+    # The scope (due 2028-02-28) is past due on 2028-03-01; a counter sequence does not use it, so the
     # station opens, identifies the scope (its identity and calibration are recorded with each run) and
     # marks it unused; the counter is still in date.
     config = load_station("sequences/demo-station.toml")
-    with open_station(config, today=dt.date(2027, 3, 1), uses=("counter", "supply", "actuator")) as station:
+    with open_station(config, today=dt.date(2028, 3, 1), uses=("counter", "supply", "actuator")) as station:
         assert [(s.role, s.used) for s in station.expired_calibrations] == [("scope", False)]
         assert station.identities["scope"].model == "YQ-S47"
