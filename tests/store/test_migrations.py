@@ -91,3 +91,38 @@ def test_stations_opening_a_new_database_together_all_start(db_url: str) -> None
     assert all(out.strip() == "opened" for out, _ in results)
     with open_store(db_url) as store:
         assert current_revision(store.engine) == head_revision()
+
+
+def test_a_database_with_tested_units_migrates_across_the_released_programs_revision(db_url: str) -> None:
+    # The failure this pins: revision 0006 added run.not_for_shipment in batch mode, which on SQLite
+    # copies `run` and DROPs the old table; with foreign keys on, SQLite refuses the DROP once steps
+    # refer to runs (SQLite "ALTER TABLE" docs, from memory), so every line database that had tested a
+    # unit failed to open. Played here: a run with a step and a reading, taken down to 0005 and back up.
+    import datetime as dt
+
+    from fixture.store import MeasurementRecord
+    from tests.store.conftest import DESIGN_SHA, SEQUENCE_SHA, STATION_SHA
+
+    with open_store(db_url) as store:
+        store.record_design("PW-22", "C", "d.toml", DESIGN_SHA)
+        store.record_sequence("final", "s.toml", SEQUENCE_SHA)
+        store.record_station("line-1", "hall 2", STATION_SHA, "st.toml")
+        run_id = store.begin_run("PW22-000001", {"c_integrator": "C1-1"}, "line-1", "op", "0", SEQUENCE_SHA,
+                                 DESIGN_SHA)
+        now = dt.datetime.now(dt.UTC)
+        store.record_step(run_id, 0, "frequency", "pass", now, now, "",
+                          [MeasurementRecord("f", "frequency_hz", 300.0, "Hz", "pass", 1.0, 1.0,
+                                             acceptance_low=200.0, acceptance_high=400.0)])
+        store.finish_run(run_id, "pass")
+    engine = make_engine(db_url)
+    try:
+        for target in ("0005", "head"):
+            with engine.execution_options(**{WRITE_OPTION: True}).begin() as connection:
+                command.downgrade(alembic_config(connection=connection), target) if target != "head" else \
+                    command.upgrade(alembic_config(connection=connection), target)
+        assert current_revision(engine) == head_revision()
+    finally:
+        engine.dispose()
+    with open_store(db_url) as store:
+        kept = store.run(run_id)
+        assert kept.summary.verdict == "pass" and [m.value for m in kept.steps[0].measurements] == [300.0]
