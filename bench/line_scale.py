@@ -5,10 +5,11 @@ What it measures, at each size (10^4 and 10^5 units by default) and on each data
 * **yield by lot** as ``knobline yield --by lot`` computes it
   (:func:`fixture.analytics.dataset.yield_counts`, the per-lot first-pass and final counts, aggregated
   inside the database), against **hand-written SQL** on the same database computing the same counts
-  from the counting rule in the ``yield`` help (window functions: a unit's first judged run, pass or
-  fail, passed; its latest judged run passed; a unit counts under each of its lots). The two must give
-  the same numbers (asserted). Best of ``--repeats`` runs each, taking turns; the ratio knobline/SQL
-  is printed (goal: at most 1.5x). The whole ``yield_report`` (per-lot counts, the overall yields
+  from the counting rule in the ``yield`` help (first-pass: a unit's first judged run, pass or fail,
+  passed; final: its latest judged run passed; a unit counts under each of its lots), written two ways
+  (window functions; each unit's lowest and highest judged run id). All must give the same numbers
+  (asserted). Best of ``--repeats`` runs each, taking turns; the ratio knobline / the faster hand
+  query is printed (goal: at most 1.5x). The whole ``yield_report`` (per-lot counts, the overall yields
   from the product grouping, unit totals, Clopper-Pearson intervals) is printed beside it;
 * **the batch report's data stage** (``build_batch_report`` with ``design=None``, as
   bench/report_scale.py does) in a fresh process: seconds and peak RSS;
@@ -54,8 +55,9 @@ from fixture.store import Store, open_store  # noqa: E402
 POSTGRES_ENV = "KNOBLINE_TEST_POSTGRES"
 GOAL_RATIO = 1.5
 
-#: Per-lot first-pass and final counts, written from the counting rule (not from knobline's query).
-HAND_SQL = text("""
+#: Per-lot first-pass and final counts written from the counting rule, two ways (not from knobline's code):
+#: window functions numbering each unit's judged runs, and each unit's lowest and highest judged run id.
+WINDOW_SQL = text("""
 WITH judged AS (
     SELECT unit_id, verdict,
            ROW_NUMBER() OVER (PARTITION BY unit_id ORDER BY id) AS from_first,
@@ -71,6 +73,18 @@ SELECT l.part_key, l.lot_code, COUNT(*), SUM(p.first_passed), SUM(p.final_passed
 FROM per_unit p JOIN unit_lot ul ON ul.unit_id = p.unit_id JOIN component_lot l ON l.id = ul.lot_id
 GROUP BY l.part_key, l.lot_code ORDER BY l.part_key, l.lot_code
 """)
+MIN_MAX_SQL = text("""
+WITH judged AS (
+    SELECT unit_id, MIN(id) AS first_id, MAX(id) AS last_id
+    FROM run WHERE verdict IN ('pass', 'fail') GROUP BY unit_id
+)
+SELECT l.part_key, l.lot_code, COUNT(*),
+       SUM(CASE WHEN f.verdict = 'pass' THEN 1 ELSE 0 END), SUM(CASE WHEN z.verdict = 'pass' THEN 1 ELSE 0 END)
+FROM judged j JOIN run f ON f.id = j.first_id JOIN run z ON z.id = j.last_id
+JOIN unit_lot ul ON ul.unit_id = j.unit_id JOIN component_lot l ON l.id = ul.lot_id
+GROUP BY l.part_key, l.lot_code ORDER BY l.part_key, l.lot_code
+""")
+HAND_SQL = {"window": WINDOW_SQL, "min_max": MIN_MAX_SQL}
 
 Counts = dict[tuple[str, str], tuple[int, int, int]]
 
@@ -83,11 +97,11 @@ def knobline_counts(store: Store) -> Counts:
             for i, k in enumerate(c.keys)}
 
 
-def sql_counts(store: Store) -> Counts:
-    """The same counts from :data:`HAND_SQL`."""
+def sql_counts(store: Store, query: Any) -> Counts:
+    """The same counts from one of :data:`HAND_SQL`."""
     with store.engine.connect() as con:
         return {(str(part), str(lot)): (int(n), int(first), int(final))
-                for part, lot, n, first, final in con.execute(HAND_SQL)}
+                for part, lot, n, first, final in con.execute(query)}
 
 
 def best_of_turns(repeats: int, fns: dict[str, Callable[[], object]]) -> dict[str, float]:
@@ -153,17 +167,25 @@ def measure(url: str, repeats: int, with_report: bool) -> dict[str, Any]:
     from report_scale import in_child  # bench/report_scale.py: builds the report in a child, returns its figures
 
     with open_store(url) as store:
-        ours, theirs = knobline_counts(store), sql_counts(store)
-        if ours != theirs:
-            differ = sorted(k for k in ours.keys() | theirs.keys() if ours.get(k) != theirs.get(k))[:5]
-            raise AssertionError(f"knobline and the hand SQL disagree at {url}: "
-                                 + "; ".join(f"{k}: {ours.get(k)} vs {theirs.get(k)}" for k in differ))
-        best = best_of_turns(repeats, {"knobline": lambda: knobline_counts(store), "sql": lambda: sql_counts(store),
-                                       "yield_report": lambda: yield_report(store, "lot")})
+        ours = knobline_counts(store)
+        for name, query in HAND_SQL.items():
+            theirs = sql_counts(store, query)
+            if ours != theirs:
+                differ = sorted(k for k in ours.keys() | theirs.keys() if ours.get(k) != theirs.get(k))[:5]
+                raise AssertionError(f"knobline and the hand SQL ({name}) disagree at {url}: "
+                                     + "; ".join(f"{k}: {ours.get(k)} vs {theirs.get(k)}" for k in differ))
+        fns: dict[str, Callable[[], object]] = {"knobline": lambda: knobline_counts(store)}
+        for name, query in HAND_SQL.items():
+            fns[name] = lambda query=query: sql_counts(store, query)  # type: ignore[misc]
+        fns["yield_report"] = lambda: yield_report(store, "lot")
+        best = best_of_turns(repeats, fns)
         units = sum(n for n, _, _ in ours.values())
+    # The reference is the faster of the two hand-written queries: the goal is against the best a person wrote.
+    sql_name = min(HAND_SQL, key=lambda name: best[name])
     figures: dict[str, Any] = {"lots": len(ours), "unit_lot_pairs": units, "knobline_s": best["knobline"],
-                               "sql_s": best["sql"], "ratio": best["knobline"] / best["sql"],
-                               "yield_report_s": best["yield_report"]}
+                               "sql_s": best[sql_name], "sql_query": sql_name,
+                               "sql_by_query_s": {name: best[name] for name in HAND_SQL},
+                               "ratio": best["knobline"] / best[sql_name], "yield_report_s": best["yield_report"]}
     if with_report:
         report = in_child(url, False)
         figures.update(report_s=report["seconds"], report_peak_mib=report["peak_mib"])
@@ -194,10 +216,11 @@ _LABELS = {"knobline_s": "yield by lot, knobline", "sql_s": "yield by lot, hand 
 
 def table(rows: list[dict[str, Any]], growths: list[dict[str, Any]]) -> str:
     """The figures as aligned text a person can read."""
-    head = ("database", "units", "lots", "knobline s", "SQL s", "ratio", "yield report s", "report s", "peak RSS")
+    head = ("database", "units", "lots", "knobline s", "SQL s (query)", "ratio", "yield report s", "report s", "peak RSS")
     lines = [head]
     for r in rows:
-        lines.append((r["db"], f"{r['units']:,}", str(r["lots"]), f"{r['knobline_s']:.3f}", f"{r['sql_s']:.3f}",
+        lines.append((r["db"], f"{r['units']:,}", str(r["lots"]), f"{r['knobline_s']:.3f}",
+                      f"{r['sql_s']:.3f} ({r['sql_query'].replace('_', '/')})",
                       f"{r['ratio']:.2f}x" + ("" if r["ratio"] <= GOAL_RATIO else " (over 1.5x)"),
                       f"{r['yield_report_s']:.3f}",
                       f"{r['report_s']:.1f}" if "report_s" in r else "-",
@@ -209,7 +232,7 @@ def table(rows: list[dict[str, Any]], growths: list[dict[str, Any]]) -> str:
         text_lines.append("")
         text_lines.append("growth from the smallest to the largest size (time ratio against size ratio):")
         for g in growths:
-            verdict = "linear or better" if g["linear_or_better"] else "faster than linear"
+            verdict = "linear or better" if g["linear_or_better"] else "worse than linear (time grows faster than size)"
             text_lines.append(f"  {g['db']:<10} {_LABELS[g['figure']]:<25} {g['from_units']:,} -> {g['to_units']:,} "
                               f"units (x{g['size_ratio']:.0f}): time x{g['time_ratio']:.1f}, {verdict}")
     return "\n".join(text_lines)
@@ -252,8 +275,9 @@ def main() -> None:
                                                    else f"store built in {built_s:.0f} s"))
                 figures = measure(url, args.repeats, not args.no_report)
             rows.append({"db": kind, "units": size, "build_s": built_s, **figures})
-            say(f"  yield by lot: knobline {figures['knobline_s']:.3f} s, SQL {figures['sql_s']:.3f} s "
-                f"({figures['ratio']:.2f}x); same counts for {figures['lots']} lots")
+            say(f"  yield by lot: knobline {figures['knobline_s']:.3f} s, hand SQL "
+                + ", ".join(f"{n.replace('_', '/')} {t:.3f} s" for n, t in figures["sql_by_query_s"].items())
+                + f" ({figures['ratio']:.2f}x the faster); same counts for {figures['lots']} lots")
     growths = growth(rows)
     if args.json:
         print(json.dumps({"goal_ratio": GOAL_RATIO, "rows": rows, "growth": growths}, indent=2))
