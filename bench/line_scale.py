@@ -226,7 +226,8 @@ def measure(url: str, repeats: int, with_report: bool) -> dict[str, Any]:
                                "ratio": best["knobline"] / best[sql_name], "yield_report_s": best["yield_report"]}
     if with_report:
         report = in_child(url, False)
-        figures.update(report_s=report["seconds"], report_peak_mib=report["peak_mib"])
+        figures.update(report_s=report["seconds"], report_peak_mib=report["peak_mib"],
+                       report_stages_s=report["stages"])
     return figures
 
 
