@@ -6,22 +6,23 @@ What it measures, at each size (10^4 and 10^5 units by default) and on each data
   (:func:`fixture.analytics.dataset.yield_counts`, the per-lot first-pass and final counts, aggregated
   inside the database), against **hand-written SQL** on the same database computing the same counts
   from the counting rule in the ``yield`` help (first-pass: a unit's first judged run, pass or fail,
-  passed; final: its latest judged run passed; a unit counts under each of its lots), written three ways
-  (window functions; each unit's lowest and highest judged run id, grouped by the lots' names or by lot
-  id first). All must give the same numbers
-  (asserted). Best of ``--repeats`` runs each, taking turns; the ratio knobline / the faster hand
-  query is printed (goal: at most 1.5x). The whole ``yield_report`` (per-lot counts, the overall yields
-  from the product grouping, unit totals, Clopper-Pearson intervals) is printed beside it;
+  passed; final: its latest judged run passed; a unit counts under each of its lots), written three
+  ways (window functions; each unit's lowest and highest judged run id, grouped by the lots' names or
+  by lot id first). All must give the same numbers (asserted). Best of ``--repeats`` runs each, taking
+  turns; the ratio knobline / the fastest hand query is printed (goal: at most 1.5x). The whole
+  ``yield_report`` (per-lot counts, the overall yields from the product grouping, unit totals,
+  Clopper-Pearson intervals) is printed beside it;
 * **the batch report's data stage** (``build_batch_report`` with ``design=None``, as
-  bench/report_scale.py does) in a fresh process: seconds and peak RSS;
+  bench/report_scale.py does) in a fresh process: seconds and peak RSS (stage seconds in ``--json``);
 * **growth** from the smallest to the largest size: time ratio against size ratio, "linear or
   better" when time grows no faster than the units (goal of issue 12 item 5).
 
 The stores are built by tests/reporting/bulk_store.py: a real 1,000-unit ``knobline demo`` batch
 replicated to each size by bulk inserts (PostgreSQL: SQLAlchemy's batched executemany through
-psycopg 3; then ANALYZE, as autovacuum would after a load); the demo retests nobody, so half the failed
-units get a passing retest run (first-pass and final yield then differ, as on a line). **A replica is a load test, not a batch
-to study statistics on**: it holds no information beyond its template.
+psycopg 3; then ANALYZE, as autovacuum would after a load); the demo retests nobody, so half the
+failed units get a passing retest run (first-pass and final yield then differ, as on a line). **A
+replica is a load test, not a batch to study statistics on**: it holds no information beyond its
+template. 10^6 units (``--sizes 10000,100000,1000000``) make a SQLite file of about 13 GB.
 
     python bench/line_scale.py [--sizes 10000,100000] [--db-kinds sqlite,postgresql] [--repeats 3] [--json]
     bash -c 'source .ci/postgres-up; PYTHONPATH=$PWD python bench/line_scale.py'   # with a throwaway PostgreSQL
