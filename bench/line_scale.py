@@ -41,7 +41,7 @@ import os
 import sys
 import time
 from collections.abc import Callable, Iterator
-from contextlib import contextmanager
+from contextlib import AbstractContextManager, contextmanager
 from pathlib import Path
 from typing import Any
 
@@ -50,7 +50,6 @@ sys.path.insert(0, str(ROOT))
 sys.path.insert(0, str(ROOT / "bench"))
 
 from sqlalchemy import create_engine, func, literal, select, text  # noqa: E402
-from sqlalchemy.engine import make_url  # noqa: E402
 
 from fixture.analytics.dataset import yield_counts  # noqa: E402
 from fixture.analytics.yields import yield_report  # noqa: E402
@@ -152,22 +151,11 @@ def best_of_turns(repeats: int, fns: dict[str, Callable[[], object]]) -> dict[st
     return best
 
 
-@contextmanager
-def postgres_database(name: str) -> Iterator[str]:
+def postgres_database(name: str) -> AbstractContextManager[str]:
     """A new, empty PostgreSQL database ``name`` on the server of ``$KNOBLINE_TEST_POSTGRES``; dropped afterwards."""
-    admin_url = make_url(os.environ[POSTGRES_ENV])
-    admin = create_engine(admin_url, isolation_level="AUTOCOMMIT")
-    try:
-        with admin.connect() as con:
-            con.execute(text(f'DROP DATABASE IF EXISTS "{name}" WITH (FORCE)'))
-            con.execute(text(f'CREATE DATABASE "{name}"'))
-        try:
-            yield admin_url.set(database=name).render_as_string(hide_password=False)
-        finally:
-            with admin.connect() as con:
-                con.execute(text(f'DROP DATABASE IF EXISTS "{name}" WITH (FORCE)'))
-    finally:
-        admin.dispose()
+    from tests.databases import postgres_database as fresh
+
+    return fresh(name, admin=os.environ[POSTGRES_ENV])
 
 
 @contextmanager

@@ -39,22 +39,27 @@ def postgres_admin_url() -> str:
 
 
 @contextmanager
-def postgres_database() -> Iterator[str]:
-    """A new empty PostgreSQL database for one test; its URL. Dropped afterwards, connections and all."""
-    admin_url = make_url(postgres_admin_url())
-    name = f"knobline_test_{secrets.token_hex(6)}"
-    admin = create_engine(admin_url, isolation_level="AUTOCOMMIT")
+def postgres_database(name: str | None = None, admin: str | None = None) -> Iterator[str]:
+    """A new empty PostgreSQL database (``name``, else a random one) for one test or bench; its URL.
+
+    On the server of ``admin`` (default: :func:`postgres_admin_url`). A database of that name left
+    by an interrupted run is dropped first. Dropped afterwards, connections and all.
+    """
+    admin_url = make_url(admin or postgres_admin_url())
+    name = name or f"knobline_test_{secrets.token_hex(6)}"
+    engine = create_engine(admin_url, isolation_level="AUTOCOMMIT")
     try:
-        with admin.connect() as connection:
+        with engine.connect() as connection:
+            connection.execute(text(f'DROP DATABASE IF EXISTS "{name}" WITH (FORCE)'))
             connection.execute(text(f'CREATE DATABASE "{name}"'))
         try:
             yield admin_url.set(database=name).render_as_string(hide_password=False)
         finally:
-            with admin.connect() as connection:
+            with engine.connect() as connection:
                 # FORCE (PostgreSQL 13+) ends connections a test's engine pool still holds.
                 connection.execute(text(f'DROP DATABASE IF EXISTS "{name}" WITH (FORCE)'))
     finally:
-        admin.dispose()
+        engine.dispose()
 
 
 @contextmanager
