@@ -67,6 +67,8 @@ def test_a_certificate_issue_and_a_retest_are_on_the_trail_in_order(db: Path, te
     assert second_cert["after_sha256"] == hashlib.sha256(html.read_bytes()).hexdigest()
     assert (first_cert["detail"]["run_id"], second_cert["detail"]["run_id"]) == (1, 2)
     assert second_cert["previous_hash"] == retest["entry_hash"]
+    # Attributable (README's audit section): a certificate issued with the run names the run's operator.
+    assert (first_cert["who"], second_cert["who"]) == ("ana", "ben")
 
 
 def test_the_text_trail_is_in_words_oldest_first(db: Path) -> None:
