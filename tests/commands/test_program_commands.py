@@ -178,10 +178,16 @@ def test_an_engineering_run_of_drafts_is_marked_and_gets_no_certificate(database
     result = run_unit(database_url, "--certificates", str(certs), "--key", str(key.path), "--json")
     assert result.exit_code == 0, result.stderr  # the shipped demo bench is an engineering station
     data = json.loads(result.stdout)
-    assert data["verdict"] == "pass" and data["certificate"] is None
+    assert data["verdict"] == "pass" and data["certificate"] is None and data["not_for_shipment"] is True
     assert "this run is marked not for shipment and gets no certificate" in result.stderr
     with open_store(database_url) as store:
         assert run_not_for_shipment(store, data["run_id"]) is True
+    # Wherever the run is listed later, the mark is beside its verdict (common practice, no source).
+    listed = invoke("runs", "--db", database_url)
+    assert "pass (not for shipment)" in listed.stdout
+    history = invoke("unit", data["serial"], "--db", database_url, "--json")
+    assert [r["not_for_shipment"] for r in json.loads(history.stdout)["runs"]] == [True]
+    assert "pass (not for shipment)" in invoke("unit", data["serial"], "--db", database_url).stdout
     assert not list(certs.glob("KL-*"))
     later = invoke("certificate", f"run:{data['run_id']}", "--db", database_url, "--key", str(key.path),
                    "--out", str(certs))
@@ -199,7 +205,8 @@ def test_a_production_station_tests_released_programs_and_refuses_a_retired_one(
                       "--key", str(key.path), "--json")
     assert passed.exit_code == 0, passed.stderr
     assert json.loads(passed.stdout)["certificate"] is not None
-    assert "not for shipment" not in passed.stderr
+    assert json.loads(passed.stdout)["not_for_shipment"] is False
+    assert "not for shipment" not in passed.stderr + invoke("runs", "--db", database_url).stdout
     engineering = invoke("test", "--serial", "PW22-000902", *LOT_OPTIONS, "--db", database_url,
                          "--operator", "olu", "--json")  # the demo bench: an engineering station, its file a draft
     assert engineering.exit_code == 0, engineering.stderr
