@@ -72,6 +72,32 @@ def test_demo_ends_with_next_steps_that_work_as_printed_and_a_second_demo_contin
                                       "--no-reports", "--json"], catch_exceptions=False)
     assert again.exit_code == 0, again.stderr
     assert [r["serial"] for r in json.loads(again.stdout)["runs"]] == ["PW22-000009", "PW22-000010", "PW22-000011"]
+    # the first demo released its files in its own database; the second finds them released
+    assert json.loads(again.stdout)["released_by_demo"] == [] and not json.loads(again.stdout)["not_for_shipment"]
+
+
+def test_the_demo_certifies_only_runs_of_released_programs(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    # README "Released test programs": a certificate is for a run of released files, the demo's too.
+    monkeypatch.setenv("XDG_DATA_HOME", str(tmp_path / "empty"))
+    own = CliRunner().invoke(main, ["demo", "--units", "2", "--out", str(tmp_path / "own"), "--json"],
+                             catch_exceptions=False)
+    assert own.exit_code == 0, own.stderr
+    data = json.loads(own.stdout)
+    assert data["released_by_demo"] == ["station", "sequence", "design"] and data["certificate_count"] == 2
+    trail = CliRunner().invoke(main, ["audit", "--db", str(tmp_path / "own" / "results.sqlite"), "--json"])
+    actions = [(e["action"], e["who"]) for e in json.loads(trail.stdout)["entries"]]
+    assert actions[:2] == [("approval", "Demo Approver (invented by knobline demo)"),
+                           ("release", "Demo Approver (invented by knobline demo)")]
+    assert actions[-2:] == [("certificate-issue", "demo")] * 2
+    # A database the demo was pointed at gets no invented people: its drafts are tested, never certified.
+    given = tmp_path / "line.sqlite"
+    other = CliRunner().invoke(main, ["demo", "--units", "2", "--out", str(tmp_path / "other"), "--db", str(given),
+                                      "--json"], catch_exceptions=False)
+    assert other.exit_code == 0, other.stderr
+    data = json.loads(other.stdout)
+    assert (data["released_by_demo"], data["not_for_shipment"], data["certificate_count"]) == ([], True, 0)
+    assert "the batch's runs are marked not for shipment and get no certificate" in other.stderr
+    assert json.loads(CliRunner().invoke(main, ["person", "list", "--db", str(given), "--json"]).stdout)["people"] == []
 
 
 def test_demo_json_keys_are_the_ones_the_help_lists(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
