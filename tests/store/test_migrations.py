@@ -53,7 +53,11 @@ def test_a_run_recorded_before_ownership_keeps_its_data_and_is_judged_by_age(db_
                 "INSERT INTO station VALUES (1, 'line-1', 'hall', 'h', '', '2026-12-01 08:00:00')",
                 "INSERT INTO unit VALUES (1, 'OLD-1', 1)",
                 "INSERT INTO run VALUES (1, 1, 1, 'op', '0.0', 's', 'd', '2026-12-01 08:00:00', NULL, 'running', "
-                "NULL, '[]')"):
+                "NULL, '[]')",
+                # A step refers to the run: revision 0002 rebuilds `run` in batch mode on SQLite, and a rebuild
+                # that dropped a table other rows refer to would fail with foreign keys on (see the test below).
+                "INSERT INTO step_result VALUES (1, 1, 0, 'power up', 'pass', '2026-12-01 08:00:01', "
+                "'2026-12-01 08:00:02', '')"):
                 connection.execute(text(statement))
     finally:
         engine.dispose()
@@ -61,6 +65,7 @@ def test_a_run_recorded_before_ownership_keeps_its_data_and_is_judged_by_age(db_
         assert current_revision(store.engine) == head_revision()
         summary = store.previous_runs("OLD-1")[0]
         assert (summary.verdict, summary.self_check_id) == ("running", None)
+        assert [st.name for st in store.run(1).steps] == ["power up"]
         # No owner was recorded: a run started two days ago with no heartbeat is long gone.
         assert store.mark_incomplete_runs("line-1") == [1]
 
