@@ -155,3 +155,38 @@ def test_travel_is_the_knob_angle_over_the_speed_step_by_step(compiled) -> None:
             here = point.position
         # the demo station's KA-2 states 180 deg/s in its profile; both knobs turn 270 deg over 0..100 %
         assert time.travel_s == pytest.approx(degrees / 180.0)
+
+
+def test_hands_on_the_knobs_plan_no_travel_and_keep_the_sequences_order(tmp_path) -> None:
+    # A manual actuator has no stated speed: travel is not planned, and the operator is asked for the
+    # stops in the order the sequence lists them.
+    text = (ROOT / "sequences/demo-station.toml").read_text().replace('kind = "motorized"', 'kind = "manual"')
+    path = tmp_path / "manual.toml"
+    path.write_text(text)
+    config = load_station(path)
+    sequence = load_sequence(ROOT / "sequences/demo-sequence.toml", station=config)
+    plan = compile_plan(sequence, sequence.design, config)
+    assert plan.motion is None
+    assert all(step.order == () for step in plan.steps)
+    timing = plan_time(plan)
+    assert not timing.travel_planned and all(s.travel_s == 0.0 for s in timing.steps)
+    assert timing.instrument_s > 0  # readings and settling still count
+
+
+def test_the_runner_drives_the_knobs_in_the_plans_order(bench, monkeypatch) -> None:
+    actuator = bench.station.driver("actuator")
+    driven: list[tuple[float, float]] = []
+    move_both = actuator.move_both
+
+    def recording(a: float, b: float):
+        driven.append((a, b))
+        return move_both(a, b)
+
+    monkeypatch.setattr(actuator, "move_both", recording)
+    assert bench.test("PW22-000301", seed=2).verdict == "pass"
+    planned = []
+    for step in bench.plan.steps:
+        for _, point in step.in_order():
+            if point.position is not None and (not planned or planned[-1] != point.position):
+                planned.append(point.position)
+    assert driven == planned
