@@ -91,11 +91,15 @@ def test_the_demo_plan_travels_less_than_the_sequences_own_order(compiled) -> No
     assert moved < sum(s.travel_s for s in plan_time(as_written).steps)
 
 
-def test_a_shortest_gate_is_the_shortest_candidate_reaching_the_target_tur(tmp_path) -> None:
+@pytest.mark.parametrize("target_tur", [4.0, 20_000.0])
+def test_a_shortest_gate_is_the_shortest_candidate_reaching_the_target_tur(tmp_path, target_tur: float) -> None:
+    # 4 is the demo station's target (every reading reaches it with the shortest gate, 1 ms); 20,000 makes
+    # some readings need longer gates and some reach it with none (then the best TUR: the longest gate).
     text = (ROOT / "sequences/demo-sequence.toml").read_text().replace('gate_time = "100 ms"', 'gate_time = "shortest"')
     path = tmp_path / "short.toml"
     path.write_text(text.replace('design = "demo-panel.toml"', f'design = "{ROOT / "sequences/demo-panel.toml"}"'))
-    config = load_station(ROOT / "sequences/demo-station.toml")
+    shipped = load_station(ROOT / "sequences/demo-station.toml")
+    config = replace(shipped, measurement=replace(shipped.measurement, target_tur=target_tur))
     sequence = load_sequence(path, station=config)
     plan = compile_plan(sequence, sequence.design, config)
     setup = config.measurement
@@ -108,16 +112,24 @@ def test_a_shortest_gate_is_the_shortest_candidate_reaching_the_target_tur(tmp_p
         knob = QUANTITIES[point.quantity].knob
         setting = KnobSetting(knob, point.knob_a_pct if knob == "a" else point.knob_b_pct, point.knob_a_pct,
                               point.knob_b_pct)
-        # Each shorter candidate either misses the target TUR or is no quicker (whole periods).
-        for shorter in (g for g in setup.gate_times_s if g < gate):
-            alone = shortest_counter_gate(point.quantity, signal_facts(design, setting, setup), setup.counter,
-                                          point.limits.tolerance_low, point.limits.tolerance_high,
-                                          target_tur=setup.target_tur, gate_times_s=(shorter,))
-            assert not alone.meets_target
-        assert point.limits.tur >= setup.target_tur
-    # Quicker than the sequence's fixed 100 ms gates, by the same rules.
-    fixed = compile_plan(load_sequence(ROOT / "sequences/demo-sequence.toml", station=config), design, config)
-    assert sum(s.measuring_s for s in plan_time(plan).steps) < sum(s.measuring_s for s in plan_time(fixed).steps)
+
+        def alone(g: float):
+            return shortest_counter_gate(point.quantity, signal_facts(design, setting, setup), setup.counter,
+                                         point.limits.tolerance_low, point.limits.tolerance_high,
+                                         target_tur=target_tur, gate_times_s=(g,))
+        if alone(gate).meets_target:
+            # No shorter candidate reaches the target (a longer gate never reads quicker: whole periods).
+            assert not any(alone(g).meets_target for g in setup.gate_times_s if g < gate)
+            assert point.limits.tur >= target_tur
+        else:
+            assert not any(alone(g).meets_target for g in setup.gate_times_s)
+            assert gate == max(setup.gate_times_s)  # the best TUR the counter offers
+    if target_tur == 4.0:
+        # Quicker than the sequence's fixed 100 ms gates, by the same rules.
+        fixed = compile_plan(load_sequence(ROOT / "sequences/demo-sequence.toml", station=config), design, config)
+        assert sum(s.measuring_s for s in plan_time(plan).steps) < sum(s.measuring_s for s in plan_time(fixed).steps)
+    else:
+        assert len({p.setting.gate_time_s for p in matrix}) > 2
 
 
 def test_each_stored_step_records_the_planned_instrument_time(bench) -> None:
