@@ -113,7 +113,7 @@ def test_a_shortest_gate_is_the_shortest_candidate_reaching_the_target_tur(tmp_p
         setting = KnobSetting(knob, point.knob_a_pct if knob == "a" else point.knob_b_pct, point.knob_a_pct,
                               point.knob_b_pct)
 
-        def alone(g: float):
+        def alone(g: float, point=point, setting=setting):
             return shortest_counter_gate(point.quantity, signal_facts(design, setting, setup), setup.counter,
                                          point.limits.tolerance_low, point.limits.tolerance_high,
                                          target_tur=target_tur, gate_times_s=(g,))
