@@ -59,7 +59,7 @@ def test_the_plan_json_keys_are_the_ones_its_help_lists() -> None:
     listed = documented_json_keys(runner.invoke(main, ["plan", "--help"]).output,
                                   {"or", "null", "hands", "on", "the", "knobs", "from", "their", "sum", "instrument",
                                    "in", "words", "reading", "numbers", "taken", "true", "when", "that", "is", "not",
-                                   "s", "times", "seconds"})
+                                   "s", "times", "seconds", "by", "hand", "are", "turned"})
     data = json.loads(runner.invoke(main, ["plan", "--json"]).output)
     assert all_keys(data) - listed == set()
 
@@ -183,6 +183,9 @@ def test_hands_on_the_knobs_plan_no_travel_and_keep_the_sequences_order(tmp_path
     timing = plan_time(plan)
     assert not timing.travel_planned and all(s.travel_s == 0.0 for s in timing.steps)
     assert timing.instrument_s > 0  # readings and settling still count
+    result = CliRunner().invoke(main, ["plan", "--station", str(path), "--json"])
+    assert result.exit_code == 0, result.output
+    assert json.loads(result.output)["unit"]["units_per_hour"] is None  # hand turning is not stated
 
 
 def test_the_runner_drives_the_knobs_in_the_plans_order(bench, monkeypatch) -> None:
