@@ -96,6 +96,17 @@ def test_bad_gate_time_is_one_line_naming_file_step_and_key(tmp_path: Path) -> N
                                   "found '-1 s'")
 
 
+def test_a_counter_step_naming_no_gate_leaves_it_to_the_plan(tmp_path: Path) -> None:
+    sequence = load(variant(tmp_path, 'gate_time = "100 ms"\n', ""))
+    first = next(s.measuring for s in sequence.steps if hasattr(s, "measuring"))
+    assert first.shortest_gate and first.gate_time_s is None and first.gate_cycles is None
+
+
+def test_a_counter_step_naming_both_gates_is_one_line(tmp_path: Path) -> None:
+    line = only_problem(variant(tmp_path, 'gate_time = "100 ms"', 'gate_time = "100 ms"\ngate_cycles = 10'))
+    assert line.endswith(".gate_time: expected at most one of gate_time and gate_cycles for the counter, found both")
+
+
 def test_a_shortest_gate_leaves_the_gate_to_the_plan(tmp_path: Path) -> None:
     sequence = load(variant(tmp_path, 'gate_time = "100 ms"', 'gate_time = "shortest"'))
     first, *others = [s.measuring for s in sequence.steps if hasattr(s, "measuring")]  # the first step edited
