@@ -92,7 +92,26 @@ def test_stop_outside_the_travel_is_one_line(tmp_path: Path) -> None:
 def test_bad_gate_time_is_one_line_naming_file_step_and_key(tmp_path: Path) -> None:
     path = variant(tmp_path, 'gate_time = "100 ms"', 'gate_time = "-1 s"')
     assert only_problem(path) == (f'{path}: step 2 (knob-matrix "frequency at knob A stops").gate_time: '
-                                  "expected a gate time such as '100 ms', above 0 and at most 100 s, found '-1 s'")
+                                  "expected a gate time such as '100 ms', above 0 and at most 100 s, or 'shortest', "
+                                  "found '-1 s'")
+
+
+def test_a_counter_step_naming_no_gate_leaves_it_to_the_plan(tmp_path: Path) -> None:
+    sequence = load(variant(tmp_path, 'gate_time = "100 ms"\n', ""))
+    first = next(s.measuring for s in sequence.steps if hasattr(s, "measuring"))
+    assert first.shortest_gate and first.gate_time_s is None and first.gate_cycles is None
+
+
+def test_a_counter_step_naming_both_gates_is_one_line(tmp_path: Path) -> None:
+    line = only_problem(variant(tmp_path, 'gate_time = "100 ms"', 'gate_time = "100 ms"\ngate_cycles = 10'))
+    assert line.endswith(".gate_time: expected at most one of gate_time and gate_cycles for the counter, found both")
+
+
+def test_a_shortest_gate_leaves_the_gate_to_the_plan(tmp_path: Path) -> None:
+    sequence = load(variant(tmp_path, 'gate_time = "100 ms"', 'gate_time = "shortest"'))
+    first, *others = [s.measuring for s in sequence.steps if hasattr(s, "measuring")]  # the first step edited
+    assert first.shortest_gate and first.gate_time_s is None and first.gate_cycles is None
+    assert not any(m.shortest_gate for m in others) and others[0].gate_time_s == pytest.approx(0.1)
 
 
 def test_unknown_quantity_is_one_line(tmp_path: Path) -> None:

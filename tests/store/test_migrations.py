@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import pytest
 from alembic import command
 from alembic.autogenerate import compare_metadata
 from alembic.runtime.migration import MigrationContext
@@ -131,3 +132,44 @@ def test_a_database_with_tested_units_migrates_across_the_released_programs_revi
     with open_store(db_url) as store:
         kept = store.run(run_id)
         assert kept.summary.verdict == "pass" and [m.value for m in kept.steps[0].measurements] == [300.0]
+
+
+def test_instrument_time_columns_go_down_to_0006_and_back_keeping_the_steps(db_url: str) -> None:
+    # Migration 0007 adds the step's instrument time as plain ADD COLUMNs (no table copy, see the
+    # 0006 test above): a step stored with its time keeps its row going down to 0006 (columns gone)
+    # and comes back up with the columns empty (the time went with them), its readings intact.
+    import datetime as dt
+
+    from fixture.store import InstrumentTime, MeasurementRecord
+    from tests.store.conftest import DESIGN_SHA, SEQUENCE_SHA, STATION_SHA
+
+    timing = InstrumentTime(measuring_s=0.25, travel_s=1.5, settling_s=0.05)
+    with open_store(db_url) as store:
+        store.record_design("PW-22", "C", "d.toml", DESIGN_SHA)
+        store.record_sequence("final", "s.toml", SEQUENCE_SHA)
+        store.record_station("line-1", "hall 2", STATION_SHA, "st.toml")
+        run_id = store.begin_run("PW22-000002", {}, "line-1", "op", "0", SEQUENCE_SHA, DESIGN_SHA)
+        now = dt.datetime.now(dt.UTC)
+        store.record_step(run_id, 0, "frequency", "pass", now, now + dt.timedelta(seconds=2), "",
+                          [MeasurementRecord("f", "frequency_hz", 300.0, "Hz", "pass", 1.0, 1.0,
+                                             acceptance_low=200.0, acceptance_high=400.0)], timing=timing)
+        store.finish_run(run_id, "pass")
+        step = store.run(run_id).steps[0]
+        assert step.instrument == timing and step.instrument.instrument_s == pytest.approx(1.8)
+        assert step.wall_s == pytest.approx(2.0)
+    engine = make_engine(db_url)
+    try:
+        with engine.execution_options(**{WRITE_OPTION: True}).begin() as connection:
+            command.downgrade(alembic_config(connection=connection), "0006")
+        columns = {c["name"] for c in inspect(engine).get_columns("step_result")}
+        assert not columns & {"instrument_s", "measuring_s", "travel_s", "settling_s"}
+        with engine.execution_options(**{WRITE_OPTION: True}).begin() as connection:
+            command.upgrade(alembic_config(connection=connection), "head")
+        columns = {c["name"] for c in inspect(engine).get_columns("step_result")}
+        assert {"instrument_s", "measuring_s", "travel_s", "settling_s"} <= columns
+    finally:
+        engine.dispose()
+    with open_store(db_url) as store:
+        kept = store.run(run_id)
+        assert kept.steps[0].instrument is None  # not recorded: shown as such, never as zero
+        assert [m.value for m in kept.steps[0].measurements] == [300.0]
