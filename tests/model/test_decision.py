@@ -133,12 +133,6 @@ def test_one_sided_tur_uses_distance_from_expected_value():
         tur(None, 20.0, 0.5)
 
 
-def test_tur_with_no_tolerance_limit_is_a_clear_error_not_a_crash():
-    # No limit, no ratio (common practice, no source); it raised TypeError from inside the arithmetic.
-    with pytest.raises(UserInputError, match="both open"):
-        tur(None, None, 0.5, value=18.0)
-
-
 @pytest.mark.parametrize("make", [
     lambda: DecisionRule("lenient"),
     lambda: DecisionRule("guarded", -1.0),
