@@ -13,12 +13,13 @@ once must be recovered (reconnect and re-identify included) within the step's re
 from __future__ import annotations
 
 import threading
+from pathlib import Path
 
 import pytest
 
 from fixture.sim.socket_faults import SocketFault
 
-from .socket_campaign import ROLES, SocketCampaignResult, ci_sample, run_socket_campaign
+from .socket_campaign import ROLES, SocketCampaignResult, SocketCase, ci_sample, run_socket_campaign, served_line
 
 
 @pytest.fixture(scope="module")
@@ -56,3 +57,24 @@ def test_a_socket_fault_given_once_is_recovered_and_the_good_unit_passes(campaig
 
 def test_the_campaign_leaves_no_server_thread_running(campaign) -> None:
     assert [n for n in campaign.leftover_threads if n.startswith("bench-server")] == []
+
+
+def test_a_supply_that_restarts_after_power_up_leaves_the_unit_unjudged(tmp_path: Path) -> None:
+    # The supply's third error-queue read is the one after the switch-off at the end of the run (one
+    # after setting it, one after switching it on): the supply restarts there. It may have restarted
+    # earlier for all the run knows, leaving the unit unpowered: not a verdict on the unit.
+    with served_line(tmp_path) as run:
+        result = run(SocketCase("supply", SocketFault.REBOOT, "once", "good", match=r"SYST:ERR\?", after=2),
+                     "PW22-900001")
+    assert result.verdict == "station-fault" and result.steps_passed == run.planned_steps
+
+
+def test_a_timed_out_error_queue_read_is_followed_by_a_clear_so_the_next_query_gets_its_own_reply(
+        tmp_path: Path) -> None:
+    # SYST:ERR? is never retried (each read removes an entry); its late reply must not answer the
+    # power-up step's retry. The retried step then passes on a new connection.
+    with served_line(tmp_path) as run:
+        result = run(SocketCase("supply", SocketFault.DELAY, "once", "good", match=r"SYST:ERR\?", after=1),
+                     "PW22-900002")
+        assert run.station.supply().session.reopened >= 1
+    assert result.verdict == "pass"
