@@ -52,3 +52,20 @@ def test_bench_server_serves_on_free_ports_and_writes_a_station_file_pointing_at
 def test_bench_server_refuses_a_fault_it_cannot_read() -> None:
     result = CliRunner().invoke(main, ["bench-server", "--any-ports", "--fault", "counter:melt", "--for", "0"])
     assert result.exit_code == 2 and "expected ROLE:KIND" in result.output
+
+
+def test_the_same_batch_gets_the_same_verdicts_and_readings_on_both_benches(tmp_path: Path) -> None:
+    # Both benches answer from the same pyvisa-sim definitions and the same seeded world: the chain
+    # over sockets must not change a reading (parity by construction, common practice, no source).
+    readings = {}
+    for bench in ("sim", "tcp"):
+        out = tmp_path / bench
+        result = CliRunner().invoke(main, ["demo", "--bench", bench, "--units", "4", "--no-reports", "--json",
+                                           "--seed", "7", "--out", str(out)])
+        assert result.exit_code == 0, result.output
+        runs = json.loads(result.stdout)["runs"]
+        with open_store(str(out / "results.sqlite")) as store:
+            readings[bench] = {r["serial"]: (r["verdict"], [(m.quantity, m.value) for s in store.run(r["run_id"]).steps
+                                                            for m in s.measurements]) for r in runs}
+    assert readings["sim"] == readings["tcp"] and len(readings["sim"]) == 4
+    assert all(len(steps) > 20 for _, steps in readings["sim"].values())
