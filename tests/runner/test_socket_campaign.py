@@ -78,3 +78,27 @@ def test_a_timed_out_error_queue_read_is_followed_by_a_clear_so_the_next_query_g
                      "PW22-900002")
         assert run.station.supply().session.reopened >= 1
     assert result.verdict == "pass"
+
+
+def test_a_supply_connection_opened_again_after_power_up_leaves_the_unit_unjudged(tmp_path: Path) -> None:
+    # The supply's connection is replaced while the unit is powered (as a retry after a timeout does):
+    # every exchange still succeeds, but the supply may have restarted in between, leaving the unit
+    # unpowered, so the run ends station fault and the output is switched off on the new connection.
+    from fixture.instruments.events import MOVED
+
+    with served_line(tmp_path) as run:
+        supply = run.station.supply().session
+        done = []
+
+        def replace_supply_connection(event) -> None:
+            if event.name == MOVED and not done:
+                done.append(True)
+                supply.transport.clear()  # a raw socket: a new connection
+
+        unsubscribe = run.station.actuator().events.subscribe(replace_supply_connection)
+        try:
+            result = run(SocketCase("supply", SocketFault.SPLIT, "once", "good", match="NEVER"), "PW22-900003")
+        finally:
+            unsubscribe()
+        assert done and supply.transport.query("OUTP:STAT?") == "0"
+    assert result.verdict == "station-fault" and result.steps_passed == run.planned_steps
