@@ -69,3 +69,32 @@ def test_the_same_batch_gets_the_same_verdicts_and_readings_on_both_benches(tmp_
                                                             for m in s.measurements]) for r in runs}
     assert readings["sim"] == readings["tcp"] and len(readings["sim"]) == 4
     assert all(len(steps) > 20 for _, steps in readings["sim"].values())
+
+
+def test_knobline_test_runs_unchanged_against_a_bench_server_in_another_process(tmp_path: Path) -> None:
+    import os
+    import signal
+    import subprocess
+    import sys
+    import time
+
+    station = tmp_path / "served.toml"
+    server = subprocess.Popen([sys.executable, "-m", "fixture.cli", "bench-server", "--any-ports", "--write-station",
+                               str(station), "--for", "120"], stdout=subprocess.PIPE, stderr=subprocess.PIPE,
+                              text=True, env={**os.environ, "PYTHONPATH": str(Path(__file__).resolve().parents[2])})
+    try:
+        deadline = time.monotonic() + 60
+        while not station.exists() and server.poll() is None and time.monotonic() < deadline:
+            time.sleep(0.1)
+        assert station.exists(), server.communicate(timeout=10)
+        lots = [arg for part in ("c_integrator", "r_integrator", "knob_a_pot", "knob_b_pot", "r_ref_top", "r_ref_bottom",
+                                 "r_schmitt_in", "r_schmitt_fb", "r_threshold_top", "r_threshold_bottom")
+                for arg in ("--lot", f"{part}=L-{part}")]
+        result = CliRunner().invoke(main, ["test", "--station", str(station), "--serial", "PW22-000001", "--json",
+                                           "--db", str(tmp_path / "r.sqlite"), *lots])
+        assert result.exit_code == 0, result.output  # 0: the unit passed
+        assert json.loads(result.stdout)["verdict"] == "pass"
+    finally:
+        server.send_signal(signal.SIGTERM)
+        out, err = server.communicate(timeout=30)
+    assert server.returncode == 0 and "stopped" in err  # SIGTERM stops it cleanly
