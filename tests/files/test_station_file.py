@@ -135,3 +135,20 @@ def test_an_expired_instrument_the_work_does_not_use_does_not_stop_it(tmp_path: 
     # without a sequence (knobline station) every instrument counts, as before
     with pytest.raises(CalibrationExpired, match="VLQ-26-03981"):
         config.require_calibrated(datetime.date(2028, 3, 1))
+
+
+def test_a_station_served_by_the_bench_server_says_so_and_may_name_only_sockets_on_this_computer(tmp_path) -> None:
+    # Sim-only commands and planted defects must never reach a real instrument (fail safe, common practice).
+    from fixture.files.toml_reader import FileProblems
+    from fixture.runner.station import is_simulated
+
+    shipped = Path(__file__).resolve().parents[2] / "sequences" / "demo-station-tcp.toml"
+    config = load_station(shipped)
+    assert config.served_simulation and is_simulated(config)
+    moved = tmp_path / "lan.toml"
+    moved.write_text(shipped.read_text().replace("127.0.0.1::5027", "192.168.1.20::5025"))
+    with pytest.raises(FileProblems, match=r"instruments\.supply\.resource: expected with \[station\] simulated"):
+        load_station(moved)
+    real = tmp_path / "real.toml"
+    real.write_text(moved.read_text().replace("simulated = true", "simulated = false"))
+    assert not is_simulated(load_station(real))

@@ -232,3 +232,92 @@ def test_a_fault_names_role_and_command_as_attributes() -> None:
     with pytest.raises(OverflowReading) as caught:
         session.query_float("fetch_frequency")
     assert (caught.value.role, caught.value.command) == ("counter", "FETC:FREQ?")
+
+
+class _Reopening:
+    """A scripted transport whose connection the instrument can drop, and which can open it again."""
+
+    def __init__(self, handler, refusals: int = 0) -> None:
+        from fixture.instruments.transport import ScriptedTransport
+
+        self.inner = ScriptedTransport(handler, name="TCPIP0::10.0.0.9::5025::SOCKET", timeout_s=0.2)
+        self.name, self.timeout_s = self.inner.name, 0.2
+        self.dropped = False
+        self.refusals = refusals   # reopen attempts refused before the instrument is back
+        self.reopens = 0
+
+    def write(self, text: str) -> None:
+        if self.dropped:
+            raise ConnectionLost(f"{self.name}: connection lost (BrokenPipeError)")
+        self.inner.write(text)
+
+    def read(self) -> str:
+        return self.inner.read()
+
+    def query(self, text: str) -> str:
+        self.write(text)
+        return self.read()
+
+    def query_block(self, text: str) -> bytes:
+        return self.inner.query_block(text)
+
+    def clear(self) -> None:
+        self.inner.clear()
+
+    def close(self) -> None:
+        self.inner.close()
+
+    def reopen(self) -> None:
+        self.reopens += 1
+        if self.refusals:
+            self.refusals -= 1
+            raise ConnectionRefusedError(111, "Connection refused")
+        self.dropped = False
+
+
+def test_a_lost_connection_is_reopened_and_the_instrument_re_identified_before_the_next_message() -> None:
+    # After a lost connection nothing is known of the instrument at the other end: ask *IDN? again
+    # (common practice for LAN instruments, no source).
+    fake = FakeInstrument({"*IDN?": IDN[COUNTER], "FETC:PER?": "1.0E-03"})
+    transport = _Reopening(fake, refusals=2)
+    from fixture.instruments.profiles import load_profile
+    from fixture.instruments.session import Session
+
+    session = Session(transport, load_profile(COUNTER))
+    transport.dropped = True
+    with pytest.raises(ConnectionLost):
+        session.query_float("fetch_period")  # a lost connection is never retried as such
+    assert session.query_float("fetch_period") == 1.0e-3
+    assert transport.inner.sent == ["*IDN?", "FETC:PER?"]  # re-identified first
+    assert (transport.reopens, session.reconnects) == (3, 1)  # two refused while it restarted
+
+
+def test_another_instrument_at_the_address_after_a_reconnect_is_a_wrong_instrument() -> None:
+    fake = FakeInstrument({"*IDN?": IDN["tessaly-yqp26"], "FETC:PER?": "1.0E-03"})
+    transport = _Reopening(fake)
+    from fixture.instruments.profiles import load_profile
+    from fixture.instruments.session import Session
+
+    session = Session(transport, load_profile(COUNTER))
+    transport.dropped = True
+    with pytest.raises(ConnectionLost):
+        session.write("initiate")
+    with pytest.raises(WrongInstrument, match="YQ-P26"):
+        session.query_float("fetch_period")
+    assert "FETC:PER?" not in transport.inner.sent
+
+
+def test_a_reconnect_gives_up_after_the_timeout_and_tries_again_at_the_next_message() -> None:
+    fake = FakeInstrument({"*IDN?": IDN[COUNTER], "FETC:PER?": "1.0E-03"})
+    transport = _Reopening(fake, refusals=10_000)
+    from fixture.instruments.profiles import load_profile
+    from fixture.instruments.session import Session
+
+    session = Session(transport, load_profile(COUNTER))
+    transport.dropped = True
+    with pytest.raises(ConnectionLost):
+        session.query_float("fetch_period")
+    with pytest.raises(ConnectionLost, match="reconnecting failed within 0.2 s"):
+        session.query_float("fetch_period")
+    transport.refusals = 0
+    assert session.query_float("fetch_period") == 1.0e-3
