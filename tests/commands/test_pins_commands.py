@@ -115,7 +115,8 @@ def test_an_engineering_run_with_an_unpinned_custom_step_is_not_for_shipment(
     assert result.exit_code == 0, result.stderr
     data = json.loads(result.stdout)
     assert data["verdict"] == "pass" and data["not_for_shipment"] is True and data["certificate"] is None
-    assert f"custom step module '{STEPS_MODULE}' of sequence {sequence} (no pin)" in result.stderr
+    assert f"not pinned: custom step module '{STEPS_MODULE}' of sequence {sequence}" in result.stderr
+    assert "not released" not in result.stderr
 
 
 def test_check_reports_a_pin_that_does_not_match_and_notes_an_unpinned_module(tmp_path: Path, monkeypatch) -> None:
