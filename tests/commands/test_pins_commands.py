@@ -136,3 +136,37 @@ def test_check_reports_a_pin_that_does_not_match_and_notes_an_unpinned_module(tm
     assert changed.exit_code == 2
     assert f'pins."{module}": expected the pinned content of custom step module {path} (sha256 {pinned}), ' \
            f"found sha256 {sha256_of(path)}" in changed.stderr
+
+
+def test_a_production_station_refuses_an_unpinned_profile_path_and_a_plugin_model_of_its_design(
+        database_url: str, tmp_path: Path) -> None:
+    from fixture.commands._program_check import check_programs
+    from fixture.errors import UserInputError
+    from fixture.files.sequence_file import load_sequence
+    from fixture.files.station_file import load_station
+    from tests.model.test_plugin_model import PLUGIN_REF, design_toml
+
+    profile = tmp_path / "our-counter.toml"
+    profile.write_bytes((ROOT / "fixture" / "instruments" / "profiles" / "tessaly-yqc83.toml").read_bytes())
+    station_path = production_station(tmp_path)
+    station_path.write_text(station_path.read_text(encoding="utf-8").replace('"tessaly-yqc83"', f'"{profile}"'),
+                            encoding="utf-8")
+    design = tmp_path / "panel-555.toml"
+    design.write_text(design_toml(PLUGIN_REF), encoding="utf-8")
+    sequence = tmp_path / "power-only.toml"
+    sequence.write_text(f'[sequence]\nname = "555 power"\ndesign = "{design}"\nserial_pattern = "PW22-[0-9]{{6}}"\n'
+                        '[[steps]]\nkind = "power-up"\nname = "power up"\ncurrent_limit = "100 mA"\n'
+                        'current_low = "2 mA"\ncurrent_high = "15 mA"\n', encoding="utf-8")
+    config, seq = load_station(station_path), load_sequence(sequence)
+    release_demo_programs(database_url, tmp_path / "people",
+                          {"station": station_path, "sequence": sequence, "design": design})
+    with open_store(database_url) as store:
+        with pytest.raises(UserInputError) as refused:
+            check_programs(store, config, seq)
+    lines = str(refused.value).splitlines()
+    plugin = ROOT / "tests" / "model" / "plugin_555.py"
+    assert len(lines) == 2  # every file released: the two unpinned dependencies are all that is refused
+    assert f"station {station_path} uses instrument profile '{profile}'" in lines[0]
+    assert pin_line(str(profile), sha256_of(profile)) in lines[0]
+    assert f"design {design} uses signal model module 'tests.model.plugin_555'" in lines[1]
+    assert pin_line("tests.model.plugin_555", sha256_of(plugin)) in lines[1]
