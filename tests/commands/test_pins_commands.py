@@ -170,3 +170,16 @@ def test_a_production_station_refuses_an_unpinned_profile_path_and_a_plugin_mode
     assert pin_line(str(profile), sha256_of(profile)) in lines[0]
     assert f"design {design} uses signal model module 'tests.model.plugin_555'" in lines[1]
     assert pin_line("tests.model.plugin_555", sha256_of(plugin)) in lines[1]
+
+
+def test_registering_a_file_whose_pin_no_longer_matches_is_refused(
+        database_url: str, tmp_path: Path, monkeypatch) -> None:
+    module, path = own_steps_module(tmp_path, monkeypatch)
+    pinned = sha256_of(path)
+    sequence = sequence_with_custom_step(tmp_path, module, f"[pins]\n{pin_line(module, pinned)}\n")
+    path.write_bytes(path.read_bytes() + b"\n# edited after pinning\n")
+    result = invoke("program", "register", str(sequence), "--by", "Erin Engineer", "--key",
+                    str(tmp_path / "engineer.pem"), "--db", database_url)
+    assert result.exit_code == 2
+    assert f"expected sha256 {pinned}, found sha256 {sha256_of(path)}" in result.stderr
+    assert json.loads(invoke("program", "list", "--json", "--db", database_url).stdout)["programs"] == []
