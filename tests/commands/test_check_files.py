@@ -44,6 +44,14 @@ def test_problems_are_json_with_file_key_expected_found_and_exit_2(tmp_path: Pat
     # every key the help documents, and no other, appears across a good and a bad answer
     good = json.loads(run(str(ROOT / "sequences" / "demo-panel.toml"), "--station", "demo-station",
                           "--sequence", "demo-sequence", "--json").stdout)
+    # a sequence with a custom step from a module outside knobline and no pin for it: an unpinned note
+    sequence = tmp_path / "custom.toml"
+    sequence.write_text((ROOT / "sequences" / "demo-sequence.toml").read_text(encoding="utf-8").replace(
+        'design = "demo-panel.toml"', f'design = "{ROOT / "sequences" / "demo-panel.toml"}"')
+        + '\n[[steps]]\nkind = "custom"\nname = "volume"\ncall = "tests.runner.custom_steps:always"\n',
+        encoding="utf-8")
+    noted = json.loads(run(str(sequence), "--json").stdout)
+    assert [n["reference"] for n in noted["unpinned"]] == ["tests.runner.custom_steps"]
     documented = documented_json_keys(run("--help").stdout)
     knobs = set(good["stops"])  # stops is keyed by knob name (a, b), data rather than keys
-    assert (all_keys(good) | all_keys(data)) - knobs == documented
+    assert (all_keys(good) | all_keys(data) | all_keys(noted)) - knobs == documented
