@@ -34,7 +34,7 @@ def bound_from_plan(plan: TestPlan) -> int:
                 continue
             target = (point.knob_a_pct, point.knob_b_pct)
             if None not in target:
-                total += MOVE * sum(1 for now, then in zip(target, knobs) if now != then)
+                total += MOVE * sum(1 for now, then in zip(target, knobs, strict=True) if now != then)
                 knobs = target
             setting = (point.quantity, point.setting.gate_time_s, point.setting.gate_cycles)
             if setting != counter:
@@ -83,4 +83,4 @@ def test_unchanged_counter_input_and_trigger_settings_are_not_sent_again_for_the
     moves = [t for t in second if ":MOVE " in t]
     for knob in ("A", "B"):
         own = [t for t in moves if t.startswith(f"KNOB:{knob}:")]
-        assert all(a != b for a, b in zip(own, own[1:]))
+        assert all(a != b for a, b in zip(own, own[1:], strict=False))
