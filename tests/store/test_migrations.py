@@ -2,6 +2,11 @@
 
 from __future__ import annotations
 
+import os
+import subprocess
+import sys
+from pathlib import Path
+
 import pytest
 from alembic import command
 from alembic.autogenerate import compare_metadata
@@ -10,7 +15,7 @@ from sqlalchemy import inspect, text
 
 from fixture.store import current_revision, head_revision, make_engine, open_store, upgrade_to_head
 from fixture.store.engine import WRITE_OPTION
-from fixture.store.migrate import alembic_config
+from fixture.store.migrate import alembic_config, shipped_head
 from fixture.store.models import Base
 
 
@@ -173,3 +178,28 @@ def test_instrument_time_columns_go_down_to_0006_and_back_keeping_the_steps(db_u
         kept = store.run(run_id)
         assert kept.steps[0].instrument is None  # not recorded: shown as such, never as zero
         assert [m.value for m in kept.steps[0].measurements] == [300.0]
+
+
+def test_the_head_read_from_the_scripts_text_is_alembics_head() -> None:
+    # The fast "already at head" check of open_store trusts this reading; Alembic's ScriptDirectory is the reference.
+    assert shipped_head() == head_revision()
+
+
+OPEN_CURRENT = """
+import sys
+from fixture.store import open_store
+with open_store(sys.argv[1]) as store:
+    store.record_design("PW-22", "B", "x.toml", "0" * 64)
+print(sorted(m for m in sys.modules if m == "alembic" or m.startswith("alembic.")))
+"""
+
+
+def test_opening_a_database_at_head_does_not_import_alembic(db_url: str) -> None:
+    # Alembic's import is ~0.2 s of every one-unit `knobline test` (bench/startup.py); a current schema needs none.
+    with open_store(db_url):
+        pass  # migrated to head here
+    env = {**os.environ, "PYTHONPATH": str(Path(__file__).resolve().parents[2])}
+    done = subprocess.run([sys.executable, "-c", OPEN_CURRENT, db_url], env=env, capture_output=True, text=True,
+                          timeout=120)
+    assert done.returncode == 0, done.stderr
+    assert done.stdout.strip() == "[]"

@@ -53,6 +53,20 @@ def test_a_run_reads_back_as_recorded(store: Store) -> None:
     assert run.decoder == constants
 
 
+def test_decoder_constants_commit_with_their_step_or_not_at_all(store: Store) -> None:
+    # One commit for the step and the constants it measured (common practice, no source): a step the
+    # store refuses (its run already ended) leaves no constants behind either.
+    constants = DecoderConstants(2.0e-3, 0.25e-3, 0.1, 0.9, "linear-in-period", "linear-in-duty", 1.5, 0.75)
+    run_id = begin(store, started_at=T0)
+    store.record_step(run_id, 0, "decoder endpoints", "pass", T0, T0, "", READINGS[:1], decoder=constants)
+    assert store.run(run_id).decoder == constants
+    ended = begin(store, "PW22-000002", started_at=T0)
+    store.finish_run(ended, "aborted", ended_at=T0)
+    with pytest.raises(SoftwareFault, match="expected a running run"):
+        store.record_step(ended, 0, "decoder endpoints", "pass", T0, T0, "", READINGS[:1], decoder=constants)
+    assert store.run(ended).decoder is None and store.run(ended).steps == ()
+
+
 def test_timestamps_are_stored_as_utc_instants(store: Store) -> None:
     # 10:00 at UTC+02:00 is 08:00 UTC (ISO 8601 offsets).
     local = dt.datetime(2026, 3, 2, 10, 0, tzinfo=dt.timezone(dt.timedelta(hours=2)))
