@@ -118,6 +118,27 @@ def ci_sample() -> list[Case]:
     return cases + [Case(c.role, c.kind, c.mode, defective[i % len(defective)]) for i, c in enumerate(cases)]
 
 
+def run_and_read(plan, sequence, station, store, case: object, serial: str,
+                 clean_up: Callable[[], None]) -> CaseResult:
+    """Run ``serial`` with the fault in place, then ``clean_up``; what the store kept of the run.
+
+    An exception out of ``run_unit`` is counted (``escaped``): a run must never end that way.
+    """
+    escaped = ""
+    try:
+        run_unit(plan, sequence, station, store, serial=serial, lots={}, operator="campaign", sleep=lambda s: None)
+    except Exception as exc:  # noqa: BLE001 - counted: a run must never end this way
+        escaped = f"{type(exc).__name__}: {exc}"[:200]
+    finally:
+        clean_up()
+    stored = store.runs(limit=1, serial=serial)
+    if not stored:
+        return CaseResult(case, "not stored", 0, 0, escaped)  # type: ignore[arg-type]
+    detail = store.run(stored[0].run_id)
+    return CaseResult(case, detail.summary.verdict, len(detail.steps),  # type: ignore[arg-type]
+                      sum(1 for s in detail.steps if s.verdict == "pass"), escaped)
+
+
 @contextmanager
 def simulated_line(db: Path, seed: int = 3) -> Iterator[Callable[[Case, str], CaseResult]]:
     """An open simulated station, world and store; yields ``run(case, serial) -> CaseResult``."""
@@ -133,20 +154,7 @@ def simulated_line(db: Path, seed: int = 3) -> Iterator[Callable[[Case, str], Ca
             world.insert(build_unit(sequence.design, serial, seed=seed, defects=UNITS[case.unit]))
             driver = station.driver(case.role)
             install_fault(driver, case.kind, times=1 if case.mode == "once" else None)
-            escaped = ""
-            try:
-                run_unit(plan, sequence, station, store, serial=serial, lots={}, operator="campaign",
-                         sleep=lambda s: None)
-            except Exception as exc:  # noqa: BLE001 - counted: a run must never end this way
-                escaped = f"{type(exc).__name__}: {exc}"[:200]
-            finally:
-                remove_fault(driver)
-            stored = store.runs(limit=1, serial=serial)
-            if not stored:
-                return CaseResult(case, "not stored", 0, 0, escaped)
-            detail = store.run(stored[0].run_id)
-            return CaseResult(case, detail.summary.verdict, len(detail.steps),
-                              sum(1 for s in detail.steps if s.verdict == "pass"), escaped)
+            return run_and_read(plan, sequence, station, store, case, serial, lambda: remove_fault(driver))
 
         run.planned_steps = len(plan.steps)  # type: ignore[attr-defined]
         yield run

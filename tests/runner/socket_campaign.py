@@ -26,7 +26,6 @@ from fixture.files.sequence_file import load_sequence
 from fixture.files.station_file import load_station
 from fixture.runner.plan import compile_plan
 from fixture.runner.station import open_station
-from fixture.runner.unit_run import run_unit
 from fixture.sim.bench_server import BenchServer, FaultTiming, write_served_station
 from fixture.sim.dut import build_unit
 from fixture.sim.faults import READING_COMMANDS, command_pattern
@@ -34,7 +33,7 @@ from fixture.sim.socket_faults import FaultSchedule, ScheduledFault, SocketFault
 from fixture.sim.world import SimulatedWorld
 from fixture.store import open_store
 
-from .fault_campaign import MODES, UNITS, CampaignResult, CaseResult
+from .fault_campaign import MODES, UNITS, CampaignResult, CaseResult, run_and_read
 
 ROOT = Path(__file__).resolve().parents[2]
 ROLES = ("counter", "supply", "actuator")
@@ -112,21 +111,11 @@ def served_line(folder: Path, seed: int = 3) -> Iterator[Callable[[SocketCase, s
             pattern = case.match or command_pattern(profile, READING_COMMANDS[case.role]).pattern
             schedule.add(ScheduledFault(case.role, case.kind, match=pattern, after=case.after,
                                         times=1 if case.mode == "once" else None))
-            escaped = ""
-            try:
-                run_unit(plan, sequence, station, store, serial=serial, lots={}, operator="campaign",
-                         sleep=lambda s: None)
-            except Exception as exc:  # noqa: BLE001 - counted: a run must never end this way
-                escaped = f"{type(exc).__name__}: {exc}"[:200]
-            finally:
+
+            def clean_up() -> None:
                 schedule.clear()
                 server.wait_ready(5.0)  # an instrument still rebooting comes back before the next case
-            stored = store.runs(limit=1, serial=serial)
-            if not stored:
-                return CaseResult(case, "not stored", 0, 0, escaped)  # type: ignore[arg-type]
-            detail = store.run(stored[0].run_id)
-            return CaseResult(case, detail.summary.verdict, len(detail.steps),  # type: ignore[arg-type]
-                              sum(1 for s in detail.steps if s.verdict == "pass"), escaped)
+            return run_and_read(plan, sequence, station, store, case, serial, clean_up)
 
         run.station = station  # type: ignore[attr-defined]
         run.planned_steps = len(plan.steps)  # type: ignore[attr-defined]
