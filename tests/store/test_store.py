@@ -236,13 +236,14 @@ def test_a_unit_or_lot_row_another_station_inserted_in_between_is_found_on_the_s
     real_attach = store_module.attach_lots
     calls: list[str] = []
 
-    def attach_after_the_other_station(s, unit, lots):
+    def attach_after_the_other_station(cursor, writes, unit, lots):
         calls.append(unit.serial)
         if len(calls) == 1:
             with open_store(db_url) as other:
                 begin(other, "PW22-000888", lots={"c_integrator": "C1-NEW"})
-            raise IntegrityError("INSERT INTO component_lot ...", {}, Exception("duplicate key value"))
-        return real_attach(s, unit, lots)
+            # the driver's own error, as the insert on the driver's cursor raises it
+            raise store.engine.dialect.loaded_dbapi.IntegrityError("duplicate key value violates unique constraint")
+        return real_attach(cursor, writes, unit, lots)
 
     store_module.attach_lots = attach_after_the_other_station
     try:
