@@ -288,7 +288,7 @@ def main() -> None:
             same.close()
             rm.close()
         m = {k: statistics.median(v) for k, v in times.items()}
-        framework = [k - p for k, p in zip(times["knobline"], times["physics"])]
+        framework = [k - p for k, p in zip(times["knobline"], times["physics"], strict=True)]
         framework_s = statistics.median(framework)
     judged = {v: verdicts.count(v) for v in sorted(set(verdicts))}
     print(f"one simulated unit: {len(plan.steps)} steps, {sum(steps)} readings, {len(station_traffic)} SCPI "
@@ -297,7 +297,7 @@ def main() -> None:
     print(f"  knobline run_unit:                               {m['knobline'] * 1e3:8.1f} ms/unit")
     print(f"    of which the simulated unit's physics:         {m['physics'] * 1e3:8.1f} ms/unit (sim only)")
     print(f"    without it (the framework's own path):         {framework_s * 1e3:8.1f} ms/unit")
-    print(f"  bare, same rows: station traffic with pyvisa,")
+    print("  bare, same rows: station traffic with pyvisa,")
     print(f"    knobline's rows in its tables with sqlite3:    {m['same'] * 1e3:8.1f} ms/unit")
     print(f"  ratio, framework / bare same rows:               {framework_s / m['same']:8.2f}x   "
           "(target <= 1.5, goal 1.25)")
