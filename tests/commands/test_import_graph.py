@@ -5,6 +5,8 @@ common practice, no source). Each heavy module named here has a place that impor
 scipy.stats (analytics/diagnosis.py takes the chi-square tail from scipy.special; analytics/__init__.py
 imports its modules on first use), Alembic (store/migrate.py when the schema is not at head), jinja2,
 reportlab, pyHanko and the certificate and signing modules (commands/test.py, only with --certificates).
+scipy.optimize and scipy.special load only when the lot watch fits a unit (analytics/part_fit.py and
+diagnosis.py import them inside the fit), so a retest, which the charts do not take again, loads no scipy.
 """
 
 from __future__ import annotations
@@ -34,6 +36,11 @@ LAZY = {
     "fixture.analytics.lots": "analytics/__init__.py (on first use)",
 }
 
+# Only when the lot watch fits the unit (a new unit with lots), never to test it or for a retest.
+FIT_ONLY = {
+    "scipy": "analytics/part_fit.py (PartFit.fit) and analytics/diagnosis.py (diagnose_unit), inside the fit",
+}
+
 PROBE = """\
 import json, sys
 from fixture.cli import main
@@ -54,16 +61,16 @@ def imported(code: str, *args: str, cwd: Path = ROOT) -> dict:
     return json.loads(proc.stdout.strip().splitlines()[-1])
 
 
-def loaded_lazy(modules: list[str]) -> dict[str, str]:
+def loaded_lazy(modules: list[str], lazy: dict[str, str] = LAZY) -> dict[str, str]:
     """The lazy modules (or their submodules) among ``modules``, each with where it should be imported."""
-    return {name: where for name, where in LAZY.items()
+    return {name: where for name, where in lazy.items()
             if any(m == name or m.startswith(name + ".") for m in modules)}
 
 
 def test_importing_the_test_command_loads_none_of_the_lazy_modules() -> None:
     probe = imported("import json, sys; import fixture.commands.test; "
                      "print(json.dumps({'modules': sorted(sys.modules)}))")
-    assert loaded_lazy(probe["modules"]) == {}
+    assert loaded_lazy(probe["modules"], {**LAZY, **FIT_ONLY}) == {}
 
 
 def test_testing_one_simulated_unit_loads_none_of_the_lazy_modules(tmp_path) -> None:
@@ -75,3 +82,16 @@ def test_testing_one_simulated_unit_loads_none_of_the_lazy_modules(tmp_path) -> 
     assert probe["exit"] == 0  # the demo unit PW22-000001 passes on the simulated bench
     assert "fixture.runner.execute" in probe["modules"]  # the unit was tested in this interpreter
     assert loaded_lazy(probe["modules"]) == {}
+
+
+def test_a_retest_loads_no_scipy_and_a_new_unit_only_for_its_lot_watch_fit(tmp_path) -> None:
+    db = tmp_path / "results.sqlite"
+    with open_store(str(db)):
+        pass
+    args = ("test", "--serial", "PW22-000001", *LOT_OPTIONS, "--db", str(db), "--operator", "t")
+    first = imported(PROBE, *args, cwd=tmp_path)
+    retest = imported(PROBE, *args, cwd=tmp_path)
+    assert first["exit"] == 0 and retest["exit"] == 0
+    assert "fixture.analytics.lot_watch_run" in retest["modules"]  # the watch ran, and saw a retest
+    assert loaded_lazy(first["modules"], FIT_ONLY) == FIT_ONLY  # the new unit was fitted: this test can fail
+    assert loaded_lazy(retest["modules"], {**LAZY, **FIT_ONLY}) == {}
