@@ -4,13 +4,12 @@ from __future__ import annotations
 
 import datetime as dt
 from collections import defaultdict
-from pathlib import Path
 
 import pytest
 from scipy.stats import binomtest
 
 from fixture.analytics.period import parse_period
-from fixture.commands.report import recorded_design
+from fixture.reporting.recorded_design import recorded_design
 from fixture.reporting.quality_view import lot_findings_view, yield_view
 from fixture.reporting.unit_history_view import history_view
 from fixture.store import Store, open_store
