@@ -185,7 +185,7 @@ def test_the_batch_report_downloads(web: dict[str, TestClient]) -> None:
 def test_the_engineer_page_shows_limits_the_rule_and_released_programs(web: dict[str, TestClient], demo) -> None:
     page = html.unescape(web["engineer"].get("/engineer").text)
     assert "Decision rule" in page and "ILAC-G8" in page and "guarded acceptance" in page
-    assert "Frequency" in page and "knob A 0 %, B 50 %" in page and "frequency_hz" not in page
+    assert "Frequency" in page and "A 0 %, B 50 %" in page and "frequency_hz" not in page
     with open_store(demo[0]) as store:
         states = [p.state for p in programs(store)]
     assert f"Released ({states.count('released')})" in page and "Waiting for approval (1)" in page
