@@ -45,7 +45,13 @@
     if (!li) { return; }
     li.className = "step step-" + d.verdict;
     li.querySelector(".step-state").textContent = d.words;
-    if (d.message) { li.insertBefore(el("p", "step-message", d.message), li.querySelector(".readings")); }
+    if (d.failed && d.failed.length) {
+      var ul = el("ul", "failed");
+      d.failed.forEach(function (line) { ul.appendChild(el("li", "", line)); });
+      li.insertBefore(ul, li.querySelector(".readings"));
+    } else if (d.message) {
+      li.insertBefore(el("p", "step-message", d.message), li.querySelector(".readings"));
+    }
   }
 
   if (run && run.dataset.finished !== "true" && window.EventSource) {
