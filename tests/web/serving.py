@@ -77,10 +77,11 @@ def _fresh_database(tmp_path: Path) -> str:
     return str(target)
 
 
-def served_app(tmp_path: Path, **settings: object) -> Starlette:
-    """The application on a fresh database in ``tmp_path`` with :data:`USERS` added."""
+def served_app(tmp_path: Path, *, traveller: bool = True, **settings: object) -> Starlette:
+    """The application on a fresh database in ``tmp_path`` with :data:`USERS` added (lots from the demo
+    traveller, or typed on the page without it)."""
     db_url = _fresh_database(tmp_path)
-    base = WebSettings(db_url=db_url, stations=[demo_station(db_url)], login_first_delay_s=0.05,
+    base = WebSettings(db_url=db_url, stations=[demo_station(db_url, traveller=traveller)], login_first_delay_s=0.05,
                        login_max_delay_s=0.2)
     return build_app(replace(base, **settings))  # type: ignore[arg-type]
 
@@ -110,7 +111,7 @@ def live_server(app: Starlette) -> Iterator[LiveServer]:
     """``app`` under uvicorn in a thread until the block ends."""
     port = free_port()
     server = uvicorn.Server(uvicorn.Config(app, host="127.0.0.1", port=port, log_level="warning",
-                                           lifespan="on"))
+                                           lifespan="on", timeout_graceful_shutdown=5))
     thread = threading.Thread(target=server.run, daemon=True)
     thread.start()
     deadline = time.monotonic() + 30

@@ -197,6 +197,26 @@ def test_a_hostile_serial_is_shown_as_text(client) -> None:
     assert "&lt;script&gt;alert(" in answer.text  # the refusal names it, escaped (HTML 5, 13.1.2.6)
 
 
+def test_hostile_lots_are_stored_as_typed_and_shown_as_text(tmp_path) -> None:
+    app = served_app(tmp_path, traveller=False)
+    hostile = '<b>C1</b>"onmouseover="alert(1)'
+    with TestClient(app) as client:
+        log_in(client, "operator")
+        desk = next(iter(state_of(app).desks.values()))
+        lots = {f"lot:{p.key}": hostile for p in desk.tester.lot_parts()}
+        answer = client.post("/station/1/start", data={"serial": "PW22-000901", **lots,
+                                                       "csrf_token": form_token(client, "/station/1")},
+                             follow_redirects=False)
+        assert answer.status_code == 303
+        view = desk.current()
+        while view is not None and not view.finished:
+            desk.wait_for_events(view, len(view.events), 1.0)
+        page = client.get("/station/1").text  # the next unit's form keeps the lots
+    assert hostile not in page and 'value="&lt;b&gt;C1&lt;/b&gt;&#34;onmouseover=&#34;alert(1)"' in page
+    with open_store(state_of(app).settings.db_url) as store:
+        assert set(store.unit("PW22-000901").lots.values()) == {hostile}  # stored exactly as typed
+
+
 def test_pages_forbid_framing_and_scripts_from_elsewhere(client) -> None:
     answer = client.get("/login")
     assert answer.headers["x-frame-options"] == "DENY"
