@@ -43,6 +43,7 @@ def test_a_good_unit_passes_with_every_step_and_reading_reported(tmp_path) -> No
     view = desk.start(GOOD_SERIAL, {}, "olwen.test")
     end = _finish(desk, view)
     assert end["verdict"] == "pass" and end["shape"] == "pass" and end["why"] == ""
+    assert end["not_for_shipment"]  # the demo station is an engineering one, its files not released here
     kinds = [e["kind"] for e in view.events]
     steps = [e for e in view.events if e["kind"] == "step"]
     assert kinds[-1] == "end" and len(steps) == steps[0]["total"]
