@@ -113,3 +113,45 @@ def test_a_unit_tested_from_the_page_is_stored_as_knobline_test_stores_it(tmp_pa
                           capture_output=True, text=True, timeout=300)
     assert proc.returncode == 0, proc.stderr
     assert _readings(web_db, end["run_id"]) == _readings(str(cli_db), 1)  # same unit, seed and plan
+
+
+def test_a_server_stopping_mid_run_ends_the_run_aborted_in_the_store(tmp_path) -> None:
+    from starlette.testclient import TestClient
+
+    from tests.web.clients import form_token, log_in
+    from tests.web.serving import served_app, state_of
+
+    app = served_app(tmp_path, pace_s=0.2)
+    with TestClient(app) as client:
+        log_in(client, "operator")
+        client.post("/station/1/start", data={"serial": GOOD_SERIAL, "csrf_token": form_token(client, "/station/1")})
+        desk = next(iter(state_of(app).desks.values()))
+        view = desk.current()
+        assert view is not None
+        while not any(e["kind"] == "point" for e in view.events):
+            desk.wait_for_events(view, len(view.events), 1.0)
+    # leaving the block shut the application down: its lifespan stops the run and waits for it
+    assert view.finished and view.end is not None and view.end["verdict"] == "aborted"
+    with open_store(state_of(app).settings.db_url) as store:
+        assert store.runs(limit=1)[0].verdict == "aborted"
+
+
+def test_a_tester_that_breaks_ends_the_run_a_station_fault_on_the_page(tmp_path) -> None:
+    class Broken:
+        name = "broken bench"
+
+        def lot_parts(self):
+            return []
+
+        def traveller_note(self):
+            return None
+
+        def check(self, serial, lots):
+            return lots
+
+        def run(self, serial, lots, operator, reporter, stop):
+            raise RuntimeError("a bug")
+
+    desk = StationDesk(Broken())
+    end = _finish(desk, desk.start(GOOD_SERIAL, {}, "olwen.test"))
+    assert end["verdict"] == "station-fault" and "RuntimeError: a bug" in end["why"]
