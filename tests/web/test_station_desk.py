@@ -155,3 +155,28 @@ def test_a_tester_that_breaks_ends_the_run_a_station_fault_on_the_page(tmp_path)
     desk = StationDesk(Broken())
     end = _finish(desk, desk.start(GOOD_SERIAL, {}, "olwen.test"))
     assert end["verdict"] == "station-fault" and "RuntimeError: a bug" in end["why"]
+
+
+def test_a_message_with_control_or_override_characters_reaches_the_page_shown_not_obeyed(tmp_path) -> None:
+    from fixture.errors import InstrumentFault
+
+    class Hostile:
+        name = "bench"
+
+        def lot_parts(self):
+            return []
+
+        def traveller_note(self):
+            return None
+
+        def check(self, serial, lots):
+            return lots
+
+        def run(self, serial, lots, operator, reporter, stop):
+            raise InstrumentFault("counter said \u202eTLUAF\u202c \x1b[31mred\x1b[0m")
+
+    desk = StationDesk(Hostile())
+    end = _finish(desk, desk.start(GOOD_SERIAL, {}, "olwen.test"))
+    # Unicode TR 9: U+202E/U+202C reorder what follows; ECMA-48: ESC starts a terminal control sequence
+    assert "\u202e" not in end["why"] and "\x1b" not in end["why"]
+    assert "TLUAF" in end["why"] and "red" in end["why"]
