@@ -75,3 +75,4 @@ def test_the_demo_prints_users_that_log_in_and_serves_a_station_whose_planted_un
     while not view.finished:
         desk.wait_for_events(view, len(view.events), 1.0)
     assert view.end["verdict"] == "pass"
+    assert not view.end["not_for_shipment"]  # the demo released its files in its own database

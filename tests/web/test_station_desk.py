@@ -43,6 +43,7 @@ def test_a_good_unit_passes_with_every_step_and_reading_reported(tmp_path) -> No
     view = desk.start(GOOD_SERIAL, {}, "olwen.test")
     end = _finish(desk, view)
     assert end["verdict"] == "pass" and end["shape"] == "pass" and end["why"] == ""
+    assert end["not_for_shipment"]  # the demo station is an engineering one, its files not released here
     kinds = [e["kind"] for e in view.events]
     steps = [e for e in view.events if e["kind"] == "step"]
     assert kinds[-1] == "end" and len(steps) == steps[0]["total"]
@@ -83,6 +84,7 @@ def test_one_run_at_a_time_per_station(tmp_path) -> None:
         desk.start(SECOND_SERIAL, {}, "olwen.test")
     desk.stop(view.number)
     _finish(desk, view)
+    desk.pace_s = 0.0  # the second run at full speed
     second = desk.start(SECOND_SERIAL, {}, "olwen.test")
     assert _finish(desk, second)["verdict"] == "pass"
 
@@ -112,3 +114,70 @@ def test_a_unit_tested_from_the_page_is_stored_as_knobline_test_stores_it(tmp_pa
                           capture_output=True, text=True, timeout=300)
     assert proc.returncode == 0, proc.stderr
     assert _readings(web_db, end["run_id"]) == _readings(str(cli_db), 1)  # same unit, seed and plan
+
+
+def test_a_server_stopping_mid_run_ends_the_run_aborted_in_the_store(tmp_path) -> None:
+    from starlette.testclient import TestClient
+
+    from tests.web.clients import form_token, log_in
+    from tests.web.serving import served_app, state_of
+
+    app = served_app(tmp_path, pace_s=0.2)
+    with TestClient(app) as client:
+        log_in(client, "operator")
+        client.post("/station/1/start", data={"serial": GOOD_SERIAL, "csrf_token": form_token(client, "/station/1")})
+        desk = next(iter(state_of(app).desks.values()))
+        view = desk.current()
+        assert view is not None
+        while not any(e["kind"] == "point" for e in view.events):
+            desk.wait_for_events(view, len(view.events), 1.0)
+    # leaving the block shut the application down: its lifespan stops the run and waits for it
+    assert view.finished and view.end is not None and view.end["verdict"] == "aborted"
+    with open_store(state_of(app).settings.db_url) as store:
+        assert store.runs(limit=1)[0].verdict == "aborted"
+
+
+def test_a_tester_that_breaks_ends_the_run_a_station_fault_on_the_page(tmp_path) -> None:
+    class Broken:
+        name = "broken bench"
+
+        def lot_parts(self):
+            return []
+
+        def traveller_note(self):
+            return None
+
+        def check(self, serial, lots):
+            return lots
+
+        def run(self, serial, lots, operator, reporter, stop):
+            raise RuntimeError("a bug")
+
+    desk = StationDesk(Broken())
+    end = _finish(desk, desk.start(GOOD_SERIAL, {}, "olwen.test"))
+    assert end["verdict"] == "station-fault" and "RuntimeError: a bug" in end["why"]
+
+
+def test_a_message_with_control_or_override_characters_reaches_the_page_shown_not_obeyed(tmp_path) -> None:
+    from fixture.errors import InstrumentFault
+
+    class Hostile:
+        name = "bench"
+
+        def lot_parts(self):
+            return []
+
+        def traveller_note(self):
+            return None
+
+        def check(self, serial, lots):
+            return lots
+
+        def run(self, serial, lots, operator, reporter, stop):
+            raise InstrumentFault("counter said \u202eTLUAF\u202c \x1b[31mred\x1b[0m")
+
+    desk = StationDesk(Hostile())
+    end = _finish(desk, desk.start(GOOD_SERIAL, {}, "olwen.test"))
+    # Unicode TR 9: U+202E/U+202C reorder what follows; ECMA-48: ESC starts a terminal control sequence
+    assert "\u202e" not in end["why"] and "\x1b" not in end["why"]
+    assert "TLUAF" in end["why"] and "red" in end["why"]
