@@ -102,10 +102,13 @@ def test_a_quality_engineer_opens_a_units_history_and_verifies_its_certificate(p
     assert "Acceptance limits" in page.inner_text("table.readings-table >> nth=0")
     shot(page, "23-quality-unit-history")
     run = page.locator(".run", has=page.locator("a", has_text="Download PDF")).first
+    assert run.locator("button", has_text="Verify PDF").count() == 0  # nothing written yet to verify
     with page.expect_download() as download:
         run.locator("a", has_text="Download PDF").click()
     saved = download.value.path()
     assert saved is not None and Path(saved).read_bytes().startswith(b"%PDF-")
+    page.reload()
+    run = page.locator(".run", has=page.locator("a", has_text="Download PDF")).first
     run.locator("button", has_text="Verify PDF").click()
     page.wait_for_selector(".outcome")
     assert page.inner_text(".outcome-word").strip().endswith("VALID")

@@ -137,12 +137,16 @@ def test_unknown_serials_and_runs_are_a_page_in_words(web: dict[str, TestClient]
 def test_a_certificate_downloads_and_verifies_then_a_changed_file_does_not(web: dict[str, TestClient], demo) -> None:
     run_id, serial = a_judged_run(demo[0])
     client = web["quality"]
+    verify_form = f'action="/run/{run_id}/verify"'
+    assert verify_form not in client.get(f"/unit/{serial}").text  # nothing written yet to verify
     pdf = client.get(f"/run/{run_id}/certificate.pdf")
     assert pdf.status_code == 200 and pdf.content.startswith(b"%PDF-")
     assert pdf.headers["content-type"] == "application/pdf" and "attachment" in pdf.headers["content-disposition"]
     page = client.get(f"/run/{run_id}/certificate.html")
     assert b'id="knobline-record"' in page.content or b"knobline" in page.content
-    token = csrf_token(client.get(f"/unit/{serial}").text)
+    unit_page = client.get(f"/unit/{serial}").text
+    assert verify_form in unit_page
+    token = csrf_token(unit_page)
     for kind in ("html", "pdf"):
         result = client.post(f"/run/{run_id}/verify", data={"csrf_token": token, "kind": kind})
         assert result.status_code == 200 and "VALID" in result.text and "DOES NOT VERIFY" not in result.text
