@@ -13,6 +13,7 @@ from pathlib import Path
 from click.testing import CliRunner
 
 from fixture.cli import main
+from fixture.reporting.signing import station_key
 from fixture.store import open_store
 
 #: serials added to the demo batch by :func:`demo_database`
@@ -21,7 +22,12 @@ ENGINEERING_SERIAL = "PW22-ENGINEERING"
 
 
 def demo_database(folder: Path, units: int = 12) -> str:
-    """A demo batch of ``units`` in ``folder/results.sqlite`` plus a station-fault and a not-for-shipment run."""
+    """A demo batch of ``units`` in ``folder/results.sqlite`` plus a station-fault and a not-for-shipment run.
+
+    The station key is made in ``folder/keys/station-key.pem``, where the web pages look beside a SQLite
+    database (the layout ``knobline demo`` writes), so no test signs with the developer's own key.
+    """
+    station_key(folder / "keys" / "station-key.pem", create_missing=True)
     result = CliRunner().invoke(main, ["demo", "--units", str(units), "--out", str(folder), "--no-reports"],
                                 catch_exceptions=False)
     assert result.exit_code == 0, result.output

@@ -10,7 +10,8 @@ from fixture.errors import UserInputError
 from fixture.reporting.signing import station_key
 from fixture.store import Store, open_store
 from fixture.store.audit import audit_trail
-from fixture.web.certificate_service import ensure_certificate, verify_run_certificate
+from fixture.web.certificate_service import CertificatePlaces, certificate_places, ensure_certificate, \
+    verify_run_certificate
 from tests.quality_demo import ENGINEERING_SERIAL, FAULTED_SERIAL, demo_database
 
 
@@ -89,3 +90,16 @@ def test_verifying_before_a_certificate_exists_says_so(store: Store, tmp_path: P
         verify_run_certificate(store, judged_run(store), tmp_path / "certs", key_path, "html")
     with pytest.raises(UserInputError, match="expected html or pdf"):
         verify_run_certificate(store, judged_run(store), tmp_path / "certs", key_path, "<svg>")
+
+
+def test_certificates_go_beside_a_sqlite_database_signed_by_its_key(store: Store, demo_url: str, tmp_path: Path,
+                                                                    monkeypatch: pytest.MonkeyPatch) -> None:
+    folder = Path(demo_url.removeprefix("sqlite:///")).parent
+    places = certificate_places(store)
+    assert (places.folder, places.key_path) == (folder / "certificates", folder / "keys" / "station-key.pem")
+    # Without a key beside the database: the station key knobline certificate uses ($KNOBLINE_KEY here).
+    monkeypatch.setenv("KNOBLINE_KEY", str(tmp_path / "elsewhere" / "station-key.pem"))
+    with open_store(f"sqlite:///{tmp_path / 'other.sqlite'}") as other:
+        places = certificate_places(other)
+    assert places == CertificatePlaces(folder=tmp_path / "certificates",
+                                       key_path=tmp_path / "elsewhere" / "station-key.pem")
