@@ -76,3 +76,14 @@ def test_the_demo_prints_users_that_log_in_and_serves_a_station_whose_planted_un
         desk.wait_for_events(view, len(view.events), 1.0)
     assert view.end["verdict"] == "pass"
     assert not view.end["not_for_shipment"]  # the demo released its files in its own database
+
+
+def test_the_demo_refuses_a_database_given_but_leaves_the_lines_database_alone(tmp_path, monkeypatch) -> None:
+    given = CliRunner().invoke(main, ["serve", "--demo", "--db", str(tmp_path / "line.sqlite")])
+    assert given.exit_code == 2 and "--demo" in given.output
+    monkeypatch.setenv("KNOBLINE_DB", str(tmp_path / "line.sqlite"))
+    monkeypatch.setattr("fixture.commands._serve_demo.prepare_demo",
+                        lambda out: (_ for _ in ()).throw(RuntimeError("demo prepared")))
+    result = CliRunner().invoke(main, ["serve", "--demo", "--out", str(tmp_path / "d")])
+    assert result.exit_code == 3 and "demo prepared" in result.output  # it went on to the demo, not refused
+    assert not (tmp_path / "line.sqlite").exists()

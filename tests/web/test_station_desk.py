@@ -94,8 +94,9 @@ def test_a_serial_or_lot_refused_before_anything_is_powered(tmp_path) -> None:
     desk = StationDesk(demo_station(db, traveller=False))
     with pytest.raises(UserInputError, match="pattern"):
         desk.start("NOT-A-SERIAL", {}, "olwen.test")
-    with pytest.raises(UserInputError, match="lot"):
+    with pytest.raises(UserInputError, match="field under Component lots") as refused:
         desk.start(GOOD_SERIAL, {}, "olwen.test")  # no traveller, no lots typed: the sequence requires them
+    assert "--lot" not in str(refused.value)  # the page's words, not the command line's
     assert desk.current() is None
     with open_store(db) as store:
         assert store.runs() == []

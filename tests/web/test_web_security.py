@@ -174,6 +174,13 @@ def test_an_operator_cannot_start_a_run_on_the_engineer_pages_nor_post_there(app
             assert answer.status_code in (403, 405), (method, path)
 
 
+def test_every_page_but_log_in_and_out_is_guarded_by_a_role(app) -> None:
+    open_to_all = {"/", "/login", "/logout"}  # "/" only redirects: to log in, or to the role's first page
+    unguarded = [r.path for r in app.routes if isinstance(r, Route) and r.path not in open_to_all
+                 and allowed_roles(r.endpoint) is None]
+    assert unguarded == []
+
+
 def test_nobody_logged_in_is_sent_to_log_in_from_every_page(app) -> None:
     with TestClient(app) as anonymous:
         for path in ("/", "/station/1", "/quality", "/engineer"):
