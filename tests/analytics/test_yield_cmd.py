@@ -77,3 +77,21 @@ def test_yield_on_a_missing_database_does_not_create_it(run, tmp_path: Path) -> 
     assert result.exit_code == 0
     assert "no runs recorded" in result.stdout
     assert not missing.exists()
+
+
+def test_yield_over_a_period_counts_only_the_verdicts_given_in_it(run, filled: str) -> None:
+    # Every run of the fixture starts on T0's UTC day, 2026-03-02 (conftest.T0).
+    same_day = json.loads(run("yield", "--db", filled, "--json", "--period", "2026-03-02").stdout)
+    everything = json.loads(run("yield", "--db", filled, "--json").stdout)
+    assert same_day["groups"] == everything["groups"] and same_day["period"] == "2026-03-02 (UTC)"
+    later = json.loads(run("yield", "--db", filled, "--json", "--period", "2026-03-03..2026-03-09").stdout)
+    assert later["groups"] == [] and later["judged_units"] == 0
+    text = run("yield", "--db", filled, "--period", "2026-03-03").stdout
+    assert text.startswith("no runs recorded in 2026-03-03 (UTC)")
+
+
+def test_a_bad_period_is_one_line_and_exit_2(run, filled: str) -> None:
+    result = CliRunner().invoke(main, ["yield", "--db", filled, "--period", "last week"])
+    assert result.exit_code == 2
+    assert result.stderr.strip().startswith("knobline: error: period: expected all, today, Nd")
+    assert len(result.stderr.strip().splitlines()) == 1

@@ -9,6 +9,7 @@ import pytest
 from scipy.stats import binomtest
 
 from fixture.analytics import clopper_pearson, load_runs, load_unit_lots, unit_totals, yield_report, yields_by
+from fixture.analytics.period import parse_period
 from fixture.errors import UserInputError
 from fixture.store import Store
 
@@ -113,3 +114,27 @@ def test_lot_yields_agree_with_the_per_run_tables(store: Store) -> None:
         assert g.first_pass.passed == (runs.verdict[first][in_lot_first] == "pass").sum()
         assert g.final.passed == (runs.verdict[last][in_lot_last] == "pass").sum()
     assert runs.first_run.sum() == 40 and runs.first_judged.sum() == unit_totals(store).judged
+
+
+def test_a_period_counts_verdicts_given_inside_it(histories: Store) -> None:
+    # Worked by hand from the fixture: on the second day (T0 + 1 day) no unit had its first judged run;
+    # the latest judged runs of U2 (pass, line-2) and U6 (fail) started then. Lot C-A holds both.
+    second_day = parse_period("2026-03-03", T0)
+    lots = {g.key: g for g in yields_by(histories, "lot", period=second_day)}
+    a = lots[("c_integrator", "C-A")]
+    assert (a.first_pass.units, a.final.passed, a.final.units) == (0, 1, 2)
+    assert ("c_integrator", "C-B") not in lots  # nothing of lot C-B was judged that day
+    report = yield_report(histories, "product", period=second_day)
+    assert (report.overall_first_pass.units, report.overall_final.passed, report.overall_final.units) == (0, 1, 2)
+    assert (report.totals.units, report.totals.judged) == (2, 2)  # U2 and U6 ran that day
+    # The first day: every first judged run (U1..U4, U6: 3 passed of 5), latest of U1, U3, U4 (2 of 3).
+    first_day = yield_report(histories, "lot", period=parse_period("2026-03-02", T0))
+    assert (first_day.overall_first_pass.passed, first_day.overall_first_pass.units) == (3, 5)
+    assert (first_day.overall_final.passed, first_day.overall_final.units) == (2, 3)
+
+
+@pytest.mark.parametrize("by", ["lot", "station", "day", "product"])
+def test_a_period_of_every_day_is_all_runs(histories: Store, by: str) -> None:
+    both_days = parse_period("2026-03-02..2026-03-03", T0)
+    assert yields_by(histories, by, period=both_days) == yields_by(histories, by)
+    assert yields_by(histories, by, period=parse_period("2026-03-04", T0)) == ()

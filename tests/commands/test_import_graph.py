@@ -34,6 +34,10 @@ LAZY = {
     "fixture.reporting.signing": "commands/test.py, only with --certificates",
     "fixture.reporting.render": "commands/_issuing.py",
     "fixture.analytics.lots": "analytics/__init__.py (on first use)",
+    "starlette": "commands/serve.py, only for knobline serve",
+    "uvicorn": "commands/serve.py, only for knobline serve",
+    "argon2": "web/passwords.py, only for knobline serve and knobline user",
+    "fixture.web.app": "commands/serve.py, only for knobline serve",
 }
 
 # Only when the lot watch fits the unit (a new unit with lots), never to test it or for a retest.
