@@ -16,7 +16,7 @@ import pytest
 from fixture._data import data_dir
 from fixture.errors import UserInputError
 from fixture.store import open_store
-from fixture.web.station_desk import RunView, StationDesk
+from fixture.web.station_desk import RunView, StationDesk, WebReporter
 from tests.web.serving import BAD_SERIAL, GOOD_SERIAL, SECOND_SERIAL, _fresh_database, demo_station
 
 ROOT = Path(__file__).resolve().parents[2]
@@ -56,11 +56,26 @@ def test_a_good_unit_passes_with_every_step_and_reading_reported(tmp_path) -> No
 
 def test_a_unit_built_with_a_wrong_part_fails_and_the_verdict_names_the_step(tmp_path) -> None:
     desk = StationDesk(demo_station(_fresh_database(tmp_path)))
-    end = _finish(desk, desk.start(BAD_SERIAL, {}, "olwen.test"))
+    view = desk.start(BAD_SERIAL, {}, "olwen.test")
+    end = _finish(desk, view)
     assert end["verdict"] == "fail" and end["shape"] == "fail"
     assert end["step"] == "frequency at knob A stops"  # the demo sequence's step of the integrator's readings
     assert "outside" in end["why"] and "Frequency at knob A" in end["why"]
     assert end["action"].startswith("the unit is bad")
+    failed = [e for e in view.events if e["kind"] == "point" and not e["ok"]]
+    assert failed and all(e["note"] == "outside its limits" and e["value"] != "no reading" for e in failed)
+
+
+def test_a_failed_point_without_a_reading_is_not_called_outside_its_limits(tmp_path) -> None:
+    # a silent output fails a point with no value: there is nothing to compare with limits (common practice)
+    desk = StationDesk(demo_station(_fresh_database(tmp_path)))
+    plan = desk.tester.plan  # type: ignore[attr-defined]
+    view = RunView(number=1, serial="PW22-X", operator="olwen.test")
+    reporter = WebReporter(view, lambda: None)
+    step = plan.steps[1]
+    reporter.point_done(step, step.points[0], None, "fail")
+    (event,) = [e for e in view.events if e["kind"] == "point"]
+    assert (event["value"], event["note"], event["ok"]) == ("no reading", "", False)
 
 
 def test_stop_ends_the_run_aborted_never_pass_and_the_store_says_so(tmp_path) -> None:

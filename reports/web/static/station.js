@@ -35,7 +35,7 @@
     r.appendChild(el("span", "r-mark", d.ok ? "\u2713" : "\u2717"));
     r.appendChild(document.createTextNode(" " + d.what + ": "));
     r.appendChild(el("b", "", d.value));
-    if (!d.ok) { r.appendChild(document.createTextNode(" ")); r.appendChild(el("span", "r-word", "outside its limits")); }
+    if (d.note) { r.appendChild(document.createTextNode(" ")); r.appendChild(el("span", "r-word", d.note)); }
     li.querySelector(".readings").appendChild(r);
   }
 
