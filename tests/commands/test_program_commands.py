@@ -59,7 +59,7 @@ def no_power(monkeypatch):
     def refuse(*args, **kwargs):
         opened.append(args)
         raise AssertionError("the station was opened")
-    monkeypatch.setattr("fixture.commands.test.open_station", refuse)
+    monkeypatch.setattr("fixture.commands._unit_on_station.open_station", refuse)
     return opened
 
 
