@@ -84,3 +84,47 @@ def test_unchanged_counter_input_and_trigger_settings_are_not_sent_again_for_the
     for knob in ("A", "B"):
         own = [t for t in moves if t.startswith(f"KNOB:{knob}:")]
         assert all(a != b for a, b in zip(own, own[1:], strict=False))
+
+
+def test_a_counter_whose_connection_was_opened_again_mid_run_is_configured_again_before_its_next_reading(
+        bench, monkeypatch) -> None:
+    # A connection opened again in place (a raw socket's clear, a reconnect) may reach an instrument that
+    # restarted at its power-on settings: the driver no longer trusts what it sent (sent_settings.py), and
+    # the runner must not skip configure() on its own account either (common practice, no source).
+    from fixture.instruments import events
+
+    counter = bench.station.counter()
+    state: dict = {"last": None, "reopened_at": None}
+    sent: list[str] = []
+
+    def on_event(event) -> None:
+        if event.source == "counter" and event.name == events.BEFORE_FETCH:
+            state["last"] = dict(event.info)["function"]
+        # the demo's duty step reads duty at each knob B stop: the reading after this move has the same setting
+        elif event.source == "actuator" and event.name == events.MOVED and state["last"] == "duty" \
+                and state["reopened_at"] is None:
+            counter.session.transport.reopen()
+            state["reopened_at"] = len(sent)
+
+    for driver in bench.station.drivers.values():
+        driver.events.subscribe(on_event)
+    real_write, real_query = VisaTransport.write, VisaTransport.query
+
+    def write(self, text):
+        sent.append(text)
+        return real_write(self, text)
+
+    def query(self, text):
+        sent.append(text)
+        return real_query(self, text)
+
+    monkeypatch.setattr(VisaTransport, "write", write)
+    monkeypatch.setattr(VisaTransport, "query", query)
+    outcome = bench.test("PW22-000505")
+    monkeypatch.undo()
+    assert outcome.verdict == "pass"
+    assert state["reopened_at"] is not None
+    after = [t for t in sent[state["reopened_at"]:] if not t.startswith("SIM:")]
+    first_fetch = next(i for i, t in enumerate(after) if t.startswith("FETC"))
+    assert after[first_fetch] == "FETC:DCYC?", after  # the duty cycle again, as the moment was chosen
+    assert any(t.startswith("CONF") for t in after[:first_fetch]), after[:first_fetch]
