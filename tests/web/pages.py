@@ -8,6 +8,7 @@ from __future__ import annotations
 import re
 from contextlib import contextmanager
 from collections.abc import Iterator
+from typing import Any
 
 from starlette.testclient import TestClient
 
@@ -44,10 +45,11 @@ def log_in(client: TestClient, role: str) -> None:
 
 
 @contextmanager
-def clients(url: str) -> Iterator[dict[str, TestClient]]:
-    """One application on ``url`` and a logged-in client per role (plus ``anonymous``)."""
+def clients(url: str, **settings: Any) -> Iterator[dict[str, TestClient]]:
+    """One application on ``url`` (with further :class:`WebSettings` ``settings``) and a logged-in client per
+    role (plus ``anonymous``)."""
     add_users(url)
-    app = build_app(WebSettings(db_url=url, login_first_delay_s=0.0))
+    app = build_app(WebSettings(db_url=url, login_first_delay_s=0.0, **settings))
     with TestClient(app) as first:
         out = {"anonymous": TestClient(app)}
         for i, role in enumerate(USERS):

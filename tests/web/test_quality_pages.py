@@ -159,6 +159,22 @@ def test_a_certificate_downloads_and_verifies_then_a_changed_file_does_not(web: 
     certificate.unlink()  # the next download writes it again, as signed
 
 
+def test_certificates_go_to_the_folder_and_key_serve_was_given(demo, tmp_path: Path) -> None:
+    from fixture.reporting.signing import station_key
+    from fixture.web.certificate_service import verify_run_certificate
+
+    folder, key = tmp_path / "line-certificates", tmp_path / "keys" / "line-key.pem"
+    station_key(key, create_missing=True)
+    run_id, _ = a_judged_run(demo[0])
+    with clients(demo[0], certificates_dir=folder, key_path=key) as web:
+        assert web["quality"].get(f"/run/{run_id}/certificate.pdf").status_code == 200
+    assert len(list(folder.glob(f"*-{run_id:06d}-*.pdf"))) == 1
+    with open_store(demo[0]) as store:
+        assert verify_run_certificate(store, run_id, folder, key, "pdf").verified
+        # not the key beside the demo database: the certificate was signed by the one given
+        assert not verify_run_certificate(store, run_id, folder, demo[1] / "keys" / "station-key.pem", "pdf").verified
+
+
 def test_verify_without_the_forms_token_is_refused(web: dict[str, TestClient], demo) -> None:
     run_id, _ = a_judged_run(demo[0])
     reply = web["quality"].post(f"/run/{run_id}/verify", data={"kind": "html"})
