@@ -184,3 +184,18 @@ def test_an_unwritable_cache_folder_only_costs_the_computation(tmp_path: Path, m
     monkeypatch.setenv("KNOBLINE_CACHE", str(blocker / "cache"))
     sequence_path = demo_copy(tmp_path)
     assert plan_of(sequence_path)[1] == computed(sequence_path, monkeypatch)
+
+
+def test_a_half_written_entry_left_by_a_killed_process_is_swept_once_an_hour_old(tmp_path: Path) -> None:
+    # common practice, no source: a temporary file younger than the sweep age may be another writer's
+    from fixture.runner.limits_cache import LEFTOVER_AFTER_S, sweep_leftovers
+
+    old, young, entry = tmp_path / ".limits-old.tmp", tmp_path / ".limits-young.tmp", tmp_path / "limits-ab.json"
+    for path in (old, young, entry):
+        path.write_text("{", encoding="utf-8")
+    now = 1_800_000_000.0
+    os.utime(old, (now - LEFTOVER_AFTER_S - 1, now - LEFTOVER_AFTER_S - 1))
+    os.utime(young, (now - 60, now - 60))
+    os.utime(entry, (now - 10 * LEFTOVER_AFTER_S, now - 10 * LEFTOVER_AFTER_S))
+    assert sweep_leftovers(tmp_path, now_s=now) == 1
+    assert not old.exists() and young.exists() and entry.exists()
