@@ -228,3 +228,31 @@ def test_check_programs_compares_the_plan_it_is_given(database_url: str, tmp_pat
     # one unit in the last place: written in full, so the two numbers people read differ
     assert repr(point.limits.tolerance_high) in str(refused.value)
 
+
+
+def test_check_with_db_reports_the_seal_status_of_a_sequence(database_url: str, tmp_path: Path, monkeypatch) -> None:
+    cache = tmp_path / "cache"
+    monkeypatch.setenv("KNOBLINE_CACHE", str(cache))
+    station = production_station(tmp_path)
+    unknown = invoke("check", "--sequence", "demo-sequence", "--db", database_url, "--json")
+    assert unknown.exit_code == 0 and json.loads(unknown.stdout)["sequence"]["release"] is None
+    _release_all(database_url, tmp_path, station)
+    sealed = invoke("check", "--station", str(station), "--sequence", "demo-sequence", "--db", database_url)
+    assert sealed.exit_code == 0, sealed.stderr
+    assert "version 1, released (knobline-release/2): tolerance limits as sealed by knobline " in sealed.stdout
+    monkeypatch.setattr(limits_cache, "_said_corrupt", False)
+    _plant(cache, 0.1)
+    differ = invoke("check", "--station", str(station), "--sequence", "demo-sequence", "--db", database_url, "--json")
+    release = json.loads(differ.stdout)["sequence"]["release"]
+    assert release["limits"] == "differ" and release["format"] == "knobline-release/2"
+    assert release["difference"].startswith("Frequency at knob A 0 %, B 50 % (step 2): released 225.000 Hz")
+    # without a station: computed without the cache, so the planted entry is not what is compared
+    assert json.loads(invoke("check", "--sequence", "demo-sequence", "--db", database_url, "--json").stdout)[
+        "sequence"]["release"]["limits"] == "as-sealed"
+
+
+def test_check_with_db_reports_a_format_1_release_as_not_sealed(database_url: str, tmp_path: Path) -> None:
+    _release_in_format_1(database_url, tmp_path, production_station(tmp_path))
+    checked = invoke("check", "--sequence", "demo-sequence", "--db", database_url, "--json")
+    release = json.loads(checked.stdout)["sequence"]["release"]
+    assert (release["limits"], release["format"]) == ("not-sealed", "knobline-release/1")
