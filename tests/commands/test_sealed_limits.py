@@ -57,7 +57,7 @@ def _plant(folder: Path, shift_hz: float) -> str:
 
 
 def test_a_production_station_refuses_limits_from_a_planted_cache_entry(
-        database_url: str, tmp_path: Path, monkeypatch, no_power) -> None:
+        database_url: str, tmp_path: Path, monkeypatch, no_power) -> None:  # noqa: F811
     cache = tmp_path / "cache"
     monkeypatch.setenv("KNOBLINE_CACHE", str(cache))
     station = production_station(tmp_path)
@@ -80,7 +80,7 @@ def test_a_production_station_refuses_limits_from_a_planted_cache_entry(
 
 
 def test_a_production_station_refuses_limits_another_knobline_computes(
-        database_url: str, tmp_path: Path, monkeypatch, no_power) -> None:
+        database_url: str, tmp_path: Path, monkeypatch, no_power) -> None:  # noqa: F811
     station = production_station(tmp_path)
     _release_all(database_url, tmp_path, station)
     # The upgrade: another version whose model widens every duty limit by a hundredth of a point.
