@@ -79,11 +79,8 @@ def test_a_production_station_refuses_limits_from_a_planted_cache_entry(
     assert "knobline limits" in said and "release the sequence again" in said
 
 
-def test_a_production_station_refuses_limits_another_knobline_computes(
-        database_url: str, tmp_path: Path, monkeypatch, no_power) -> None:  # noqa: F811
-    station = production_station(tmp_path)
-    _release_all(database_url, tmp_path, station)
-    # The upgrade: another version whose model widens every duty limit by a hundredth of a point.
+def _upgrade(monkeypatch) -> None:
+    """Another knobline version whose model widens every duty limit by a hundredth of a point."""
     monkeypatch.setattr("fixture.__version__", "0.2.0")
     real = limits_cache.compute_limits
 
@@ -93,12 +90,39 @@ def test_a_production_station_refuses_limits_another_knobline_computes(
                      for r in table.rows)
         return dataclasses.replace(table, rows=rows)
     monkeypatch.setattr(limits_cache, "compute_limits", wider)
+
+
+def test_a_production_station_refuses_limits_another_knobline_computes(
+        database_url: str, tmp_path: Path, monkeypatch, no_power) -> None:  # noqa: F811
+    station = production_station(tmp_path)
+    _release_all(database_url, tmp_path, station)
+    _upgrade(monkeypatch)
     refused = run_unit(database_url, "--station", str(station))
     assert refused.exit_code == 2, refused.stderr
     assert no_power == []
     assert "this knobline (knobline 0.2.0) computes other limits than the one that released them (knobline " \
         in refused.stderr
     assert "Duty cycle at knob A 50 %, B 0 % (step 3): released " in refused.stderr
+
+
+def test_a_new_revision_of_the_sequence_released_seals_the_new_limits(
+        database_url: str, tmp_path: Path, monkeypatch) -> None:
+    # What the refusal says to do, done: a new revision of the sequence, released, seals the limits computed now.
+    station = production_station(tmp_path)
+    _release_all(database_url, tmp_path, station)
+    _upgrade(monkeypatch)
+    assert run_unit(database_url, "--station", str(station)).exit_code == 2
+    revised = tmp_path / "new" / "demo-sequence.toml"
+    revised.parent.mkdir()
+    revised.write_text(DEMO_FILES["sequence"].read_text(encoding="utf-8").replace(
+        'design = "demo-panel.toml"', f'design = "{DEMO_FILES["design"]}"') + "# limits reviewed for 0.2.0\n",
+        encoding="utf-8")
+    with open_store(database_url) as store:
+        release_file(store, "sequence", revised, tmp_path / "people")
+    passed = run_unit(database_url, str(revised), "--station", str(station), "--json")
+    assert passed.exit_code == 0, passed.stderr
+    listed = invoke("program", "list", "--db", database_url).stdout
+    assert "sequence demo-sequence.toml version 2: released" in listed and "computed by knobline 0.2.0" in listed
 
 
 def test_a_production_station_tests_when_the_limits_are_as_sealed(database_url: str, tmp_path: Path) -> None:
