@@ -1,8 +1,8 @@
 """The canonical text and SHA-256 of a sequence's tolerance limits (fixture/runner/limits_seal.py).
 
-References: SHA-256 per FIPS 180-2 appendix B.1 (message "abc"); float.hex per the Python documentation
-of float.hex/float.fromhex (its example ``float.fromhex('0x3.a7p10')`` is 3740.0, written back as
-``0x1.d380000000000p+11``) and IEEE 754 binary64 (0.1 is 0x1.999999999999ap-4). The rest is our own format.
+References: SHA-256 per FIPS 180-2 appendix B.1 (message "abc"); the ``e`` presentation type of Python's
+format specification mini-language (``format(310.0, '.8e')`` is ``3.10000000e+02``); IEEE 754 binary64 (the
+next double above 310 is 310 + 2**-44). The rest is our own format.
 """
 
 from __future__ import annotations
@@ -34,14 +34,15 @@ def test_the_seal_hash_is_sha256_of_the_texts_utf8_bytes() -> None:
     assert seal_sha256("abc") == "ba7816bf8f01cfea414140de5dae2223b00361a396177a9cb410ff61f20015ad"
 
 
-def test_numbers_are_written_exactly_so_one_unit_in_the_last_place_is_another_text() -> None:
-    row = SealRow(1, "frequency_hz", 0.1, 3740.0, 225.0, 310.0)
+def test_numbers_are_kept_to_nine_figures_so_a_last_place_difference_between_machines_is_the_same_seal() -> None:
+    row = SealRow(1, "frequency_hz", 25.0, 50.0, 225.0, 310.0)
     text = seal_text([row])
-    # Python docs (float.hex) and IEEE 754 binary64: 0.1 -> 0x1.999999999999ap-4, 3740.0 -> 0x1.d380000000000p+11
-    assert text == (f"{SEAL_FORMAT}\n1\tfrequency_hz\t0x1.999999999999ap-4\t0x1.d380000000000p+11\t"
-                    "0x1.c200000000000p+7\t0x1.3600000000000p+8\n")
+    # Python's format mini-language, presentation type "e" with precision 8: nine significant figures
+    assert text == f"{SEAL_FORMAT}\n1\tfrequency_hz\t2.50000000e+01\t5.00000000e+01\t2.25000000e+02\t3.10000000e+02\n"
     nudged = dataclasses.replace(row, high=310.0 + 2 ** -44)  # the next double above 310 (ulp 2**-44 at 2**8)
-    assert seal_text([nudged]) != text and seal_sha256(seal_text([nudged])) != seal_sha256(text)
+    assert seal_text([nudged]) == text
+    changed = dataclasses.replace(row, high=310.00001)  # a change in the eighth figure is another seal
+    assert seal_sha256(seal_text([changed])) != seal_sha256(text)
 
 
 def test_a_sealed_text_reads_back_to_its_rows_and_anything_else_is_refused() -> None:
@@ -49,7 +50,7 @@ def test_a_sealed_text_reads_back_to_its_rows_and_anything_else_is_refused() -> 
     text = seal_text(rows)
     assert parse_seal_text(text) == rows
     for bad in (text.replace(SEAL_FORMAT, "knobline-limits-seal/9"), text[:-1], text.replace("\t", " ", 1),
-                text.replace("0x1.4000000000000p+4", "20.0")):  # a number not in float.hex form
+                text.replace("2.00000000e+01", "20.0")):  # a number not in the canonical form
         with pytest.raises(ValueError):
             parse_seal_text(bad)
 
@@ -68,6 +69,8 @@ def test_the_first_difference_names_the_stop_quantity_and_both_limits_in_words()
     assert first_difference(released, (SealRow(1, "frequency_hz", 25.0, 50.0, 224.9, 310.1),)) == (
         "Frequency at knob A 25 %, B 50 % (step 2): released 225.000 Hz to 310.000 Hz, computed now 224.900 Hz to "
         "310.100 Hz")
-    tiny = first_difference(released, (SealRow(1, "frequency_hz", 25.0, 50.0, 225.0, 310.0 + 2 ** -44),))
-    assert "released 225.0 to 310.0 Hz, computed now 225.0 to 310.00000000000006 Hz" in tiny
+    tiny = first_difference(released, (SealRow(1, "frequency_hz", 25.0, 50.0, 225.0, 310.00001),))
+    assert "released 225.0 to 310.0 Hz, computed now 225.0 to 310.00001 Hz" in tiny
+    assert first_difference(released, (SealRow(1, "frequency_hz", 25.0, 50.0, 225.0, 310.0 + 2 ** -44),)) == \
+        "no row differs"
     assert "was released but is not read now" in first_difference(released, ())
