@@ -41,8 +41,14 @@ def release_file(store: Store, kind: str, path: Path, key_dir: Path, reason: str
     registration = sign_registration(load_person_private_key(engineer_key), kind, path.name, sha, ENGINEER)
     program, _ = register_program(store, kind, path.name, sha, raw.decode("utf-8"), registration)
     if program.state == "draft":
+        limits = None
+        if kind == "sequence":  # a sequence's release seals its limits, as knobline program release does
+            from fixture.files.sequence_file import load_sequence
+            from fixture.runner.limits_seal import seal_of
+
+            limits = seal_of(load_sequence(path, search_dirs=(SHIPPED,)))
         record_release(store, program.program_id,
-                       sign_release(load_person_private_key(approver_key), program, APPROVER, reason))
+                       sign_release(load_person_private_key(approver_key), program, APPROVER, reason, limits=limits))
 
 
 def release_demo_programs(db_url: str, key_dir: Path, files: dict[str, Path] | None = None) -> None:

@@ -52,6 +52,15 @@ def test_problems_are_json_with_file_key_expected_found_and_exit_2(tmp_path: Pat
         encoding="utf-8")
     noted = json.loads(run(str(sequence), "--json").stdout)
     assert [n["reference"] for n in noted["unpinned"]] == ["tests.runner.custom_steps"]
+    # with --db, the sequence's release and its sealed limits (README "Sealed limits")
+    from fixture.store import open_store
+    from tests.programs import DEMO_FILES, release_file
+
+    url = f"sqlite:///{tmp_path / 'results.sqlite'}"
+    with open_store(url) as store:
+        release_file(store, "sequence", DEMO_FILES["sequence"], tmp_path / "people")
+    released = json.loads(run("--sequence", "demo-sequence", "--db", url, "--json").stdout)
+    assert released["sequence"]["release"]["limits"] == "as-sealed"
     documented = documented_json_keys(run("--help").stdout)
     knobs = set(good["stops"])  # stops is keyed by knob name (a, b), data rather than keys
-    assert (all_keys(good) | all_keys(data) | all_keys(noted)) - knobs == documented
+    assert (all_keys(good) | all_keys(data) | all_keys(noted) | all_keys(released)) - knobs == documented

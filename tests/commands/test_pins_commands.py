@@ -144,6 +144,7 @@ def test_a_production_station_refuses_an_unpinned_profile_path_and_a_plugin_mode
     from fixture.errors import UserInputError
     from fixture.files.sequence_file import load_sequence
     from fixture.files.station_file import load_station
+    from fixture.runner.plan import compile_plan
     from tests.model.test_plugin_model import PLUGIN_REF, design_toml
 
     profile = tmp_path / "our-counter.toml"
@@ -162,7 +163,7 @@ def test_a_production_station_refuses_an_unpinned_profile_path_and_a_plugin_mode
                           {"station": station_path, "sequence": sequence, "design": design})
     with open_store(database_url) as store:
         with pytest.raises(UserInputError) as refused:
-            check_programs(store, config, seq)
+            check_programs(store, config, seq, compile_plan(seq, seq.design, config))
     lines = str(refused.value).splitlines()
     plugin = ROOT / "tests" / "model" / "plugin_555.py"
     assert len(lines) == 2  # every file released: the two unpinned dependencies are all that is refused

@@ -153,6 +153,14 @@ def test_a_changed_file_is_not_released(database_url: str, tmp_path: Path, no_po
     ("UPDATE program_approval SET signature = :zero WHERE program_id = :id", "does not verify"),
     ("DELETE FROM program_approval WHERE program_id = :id", "marked released but has no approval"),
     ("UPDATE program SET file_name = 'other.toml' WHERE id = :id", "registration signature does not verify"),
+    # the sealed limits (format knobline-release/2): their text must hash to the signed hash, and erasing the
+    # seal does not turn the release into a format-1 one (the signature covers format and seal)
+    ("UPDATE program_approval SET limits_rows = 'knobline-limits-seal/1\n' WHERE program_id = :id",
+     "sealed limits text does not hash"),
+    ("UPDATE program_approval SET limits_sha256 = NULL, limits_computed_by = NULL, limits_rows = NULL "
+     "WHERE program_id = :id", "approval signature does not verify"),
+    ("UPDATE program_approval SET limits_computed_by = 'knobline 9.9' WHERE program_id = :id",
+     "approval signature does not verify"),
 ])
 def test_a_tampered_release_is_not_released(database_url: str, tmp_path: Path, no_power, tamper: str,
                                             says: str) -> None:

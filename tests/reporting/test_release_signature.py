@@ -11,7 +11,8 @@ from pathlib import Path
 import pytest
 from cryptography.hazmat.primitives.asymmetric import ed25519
 
-from fixture.errors import UserInputError
+from fixture.errors import SoftwareFault, UserInputError
+from fixture.reporting import release_signature
 from fixture.reporting.person_keys import (
     generate_person_key,
     key_fingerprint,
@@ -30,10 +31,11 @@ from fixture.reporting.release_signature import (
     registration_problem,
     release_payload,
     release_problem,
+    release_format,
     sign_registration,
-    sign_release,
 )
-from fixture.store.programs import PersonRecord, ProgramRecord
+from fixture.store.programs import ApprovalRecord, PersonRecord, ProgramRecord
+from tests.sealed import SEAL, sign_release
 
 # RFC 8032 section 7.1, "TEST 1" (Ed25519, empty message): secret key, public key and signature.
 RFC8032_T1_SECRET = bytes.fromhex("9d61b19deffd5a60ba844af492ec2cc44449c5697b326919703bac031cae7f60")
@@ -172,3 +174,37 @@ def test_a_release_signed_by_another_key_or_approved_by_its_registrant_does_not_
     assert "role engineer" in (approval_problem(program(), sign_release(key, program(), "Ada", "x", now=NOW),
                                                 approver(key, role="engineer")) or "")
     assert release_problem(program(state="draft"), approver(key), ERIN) == "it is draft"
+
+
+def test_a_sequences_release_signs_format_2_with_the_limits_hash_and_the_knobline_that_computed_them() -> None:
+    # Our own format (fixture/reporting/release_signature.py docstring): format 1's fields plus two.
+    payload = release_payload("sequence", "ab" * 32, 3, RELEASED_FOR_PRODUCTION, "Rev C", "Ada", NOW, SEAL)
+    assert payload == ('{"approver":"Ada","computed_by":"knobline 0.1.0","format":"knobline-release/2",'
+                       '"kind":"sequence",'
+                       f'"limits_sha256":"{SEAL.sha256}","meaning":"released for production","reason":"Rev C",'
+                       f'"sha256":"{"ab" * 32}","signed_at":"2026-12-04T06:30:15Z","version":3}}').encode()
+    key = ed25519.Ed25519PrivateKey.generate()
+    approval = sign_release(key, program(), "Ada", "first release", now=NOW)
+    assert approval.limits == SEAL and approval_problem(program(), approval, approver(key)) is None
+
+
+@pytest.mark.parametrize("seal_change", [
+    {"sha256": "00" * 32}, {"computed_by": "knobline 0.2.0"}, {"rows_text": SEAL.rows_text + "\n"}, None])
+def test_a_changed_or_erased_seal_does_not_verify(seal_change: dict[str, str] | None) -> None:
+    # None: the seal erased, which must not read as a release in format 1 (the signature covers the format)
+    key = ed25519.Ed25519PrivateKey.generate()
+    approval = sign_release(key, program(), "Ada", "first release", now=NOW)
+    limits = None if seal_change is None else dataclasses.replace(SEAL, **seal_change)
+    assert approval_problem(program(), dataclasses.replace(approval, limits=limits), approver(key)) is not None
+
+
+def test_a_format_1_release_of_a_sequence_made_before_seals_still_verifies() -> None:
+    # An old database: the approver signed the format-1 payload, and no seal is stored beside it.
+    key = ed25519.Ed25519PrivateKey.generate()
+    payload = release_payload("sequence", "cd" * 32, 2, RELEASED_FOR_PRODUCTION, "old", "Ada", NOW)
+    approval = ApprovalRecord("Ada", RELEASED_FOR_PRODUCTION, "old", NOW, key_fingerprint(key.public_key()),
+                              sign(key, payload))
+    assert approval_problem(program(), approval, approver(key)) is None
+    assert release_format(approval) == "knobline-release/1"
+    with pytest.raises(SoftwareFault, match="sealed limits"):  # a new release of a sequence always seals
+        release_signature.sign_release(key, program(), "Ada", "new", now=NOW)

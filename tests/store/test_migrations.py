@@ -203,3 +203,42 @@ def test_opening_a_database_at_head_does_not_import_alembic(db_url: str) -> None
                           timeout=120)
     assert done.returncode == 0, done.stderr
     assert done.stdout.strip() == "[]"
+
+
+def test_sealed_limits_columns_go_down_to_0008_and_back_keeping_the_approvals(db_url: str, tmp_path: Path) -> None:
+    # Migration 0009 adds a sequence release's sealed limits as plain nullable ADD COLUMNs. Approvals stored
+    # before (format knobline-release/1) keep verifying; a format-2 approval taken down to 0008 loses its seal,
+    # and back at head it does not verify (its signature covers the seal), never reads as format 1.
+    import hashlib
+
+    from fixture.reporting.release_signature import release_problem
+    from fixture.store.programs import person, program_by_hash, programs
+    from tests.programs import release_file
+
+    design = tmp_path / "d.toml"
+    design.write_text("a design's bytes\n", encoding="utf-8")
+    with open_store(db_url) as store:
+        release_file(store, "design", design, tmp_path / "people")
+        release_file(store, "sequence", Path(__file__).parents[2] / "sequences" / "demo-sequence.toml",
+                     tmp_path / "people")
+    engine = make_engine(db_url)
+    columns = {"limits_sha256", "limits_computed_by", "limits_rows"}
+    try:
+        with engine.execution_options(**{WRITE_OPTION: True}).begin() as connection:
+            command.downgrade(alembic_config(connection=connection), "0008")
+        assert not columns & {c["name"] for c in inspect(engine).get_columns("program_approval")}
+        with engine.connect() as connection:
+            assert connection.execute(text("SELECT count(*) FROM program_approval")).scalar_one() == 2
+        with engine.execution_options(**{WRITE_OPTION: True}).begin() as connection:
+            command.upgrade(alembic_config(connection=connection), "head")
+        assert columns <= {c["name"] for c in inspect(engine).get_columns("program_approval")}
+    finally:
+        engine.dispose()
+    with open_store(db_url) as store:
+        d = program_by_hash(store, "design", hashlib.sha256(design.read_bytes()).hexdigest())
+        assert d is not None and d.approval is not None and d.approval.limits is None
+        assert release_problem(d, person(store, d.approval.approver), person(store, d.registered_by)) is None
+        s = next(p for p in programs(store) if p.kind == "sequence")
+        assert s.approval is not None and s.approval.limits is None
+        assert "does not verify" in (release_problem(s, person(store, s.approval.approver),
+                                                     person(store, s.registered_by)) or "")

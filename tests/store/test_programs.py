@@ -16,7 +16,8 @@ from cryptography.hazmat.primitives.asymmetric import ed25519
 
 from fixture.errors import UserInputError
 from fixture.reporting.person_keys import key_fingerprint, public_key_pem
-from fixture.reporting.release_signature import sign_registration, sign_release
+from fixture.reporting.release_signature import sign_registration
+from tests.sealed import sign_release
 from fixture.store import Store
 from fixture.store.programs import (
     add_person,

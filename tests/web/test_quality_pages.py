@@ -208,8 +208,10 @@ def test_the_engineer_page_shows_limits_the_rule_and_released_programs(web: dict
     assert "Frequency" in page and "A 0 %, B 50 %" in page and "frequency_hz" not in page
     with open_store(demo[0]) as store:
         states = [p.state for p in programs(store)]
+        sequence_released = any(p.kind == "sequence" and p.state == "released" for p in programs(store))
     assert f"Released ({states.count('released')})" in page and "Waiting for approval (1)" in page
     assert f"{ENGINEER} on " in page and "waiting for a second person's approval" in page
+    assert sequence_released and "tolerance limits sealed (computed by knobline " in page  # README "Sealed limits"
     plot = web["engineer"].get("/engineer/limits.svg")
     assert plot.status_code == 200 and plot.headers["content-type"].startswith("image/svg+xml")
     assert b"<svg" in plot.content[:2000]
