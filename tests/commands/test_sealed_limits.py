@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import dataclasses
 import datetime as dt
+import math
 import hashlib
 import json
 from pathlib import Path
@@ -24,6 +25,7 @@ from fixture.files.station_file import load_station
 from fixture.reporting.person_keys import key_fingerprint, load_person_private_key, sign
 from fixture.reporting.release_signature import RELEASED_FOR_PRODUCTION, release_payload, sign_registration
 from fixture.runner import limits_cache
+from fixture.runner.limits_seal import sealed
 from fixture.runner.plan import compile_plan
 from fixture.store import open_store
 from fixture.store.program_models import PersonRow, ProgramApprovalRow, ProgramRow
@@ -244,13 +246,31 @@ def test_check_programs_compares_the_plan_it_is_given(database_url: str, tmp_pat
         assert point.limits is not None
         moved = dataclasses.replace(point, limits=dataclasses.replace(point.limits,
                                                                       tolerance_high=point.limits.tolerance_high
-                                                                      * (1 + 2 ** -52)))
+                                                                      * (1 + 1e-6)))
         changed = dataclasses.replace(plan, steps=(plan.steps[0], dataclasses.replace(step, points=(
             moved, *step.points[1:])), *plan.steps[2:]))
         with pytest.raises(Exception, match="found other limits compiled now") as refused:
             check_programs(store, config, seq, changed)
-    # one unit in the last place: written in full, so the two numbers people read differ
-    assert repr(point.limits.tolerance_high) in str(refused.value)
+    # a part in a million: past the six figures people read, so both numbers are written in full
+    assert repr(sealed(point.limits.tolerance_high)) in str(refused.value)
+
+
+def test_a_limit_a_unit_in_the_last_place_apart_is_the_released_one(database_url: str, tmp_path: Path) -> None:
+    # numpy's exp and log differ in the last place between CPUs (SIMD code paths): not a change of limits
+    station = production_station(tmp_path)
+    _release_all(database_url, tmp_path, station)
+    config = load_station(station)
+    seq = load_sequence(DEMO_FILES["sequence"], station=config, search_dirs=(SHIPPED,))
+    plan = compile_plan(seq, seq.design, config)
+    step = plan.steps[1]
+    point = step.points[0]
+    assert point.limits is not None
+    nudged = dataclasses.replace(point, limits=dataclasses.replace(
+        point.limits, tolerance_high=math.nextafter(point.limits.tolerance_high, math.inf)))
+    plan = dataclasses.replace(plan, steps=(plan.steps[0], dataclasses.replace(step, points=(
+        nudged, *step.points[1:])), *plan.steps[2:]))
+    with open_store(database_url) as store:
+        assert check_programs(store, config, seq, plan).not_for_shipment is False
 
 
 
