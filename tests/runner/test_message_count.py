@@ -44,8 +44,8 @@ def bound_from_plan(plan: TestPlan) -> int:
     return total
 
 
-def runner_messages(monkeypatch, run) -> list[str]:
-    """Every message the runner's drivers sent during ``run()`` (the simulated world's ``SIM:`` left out)."""
+def recording(monkeypatch) -> list[str]:
+    """A list that every message sent through any VisaTransport is appended to, until ``monkeypatch.undo()``."""
     sent: list[str] = []
     real_write, real_query = VisaTransport.write, VisaTransport.query
 
@@ -59,6 +59,12 @@ def runner_messages(monkeypatch, run) -> list[str]:
 
     monkeypatch.setattr(VisaTransport, "write", write)
     monkeypatch.setattr(VisaTransport, "query", query)
+    return sent
+
+
+def runner_messages(monkeypatch, run) -> list[str]:
+    """Every message the runner's drivers sent during ``run()`` (the simulated world's ``SIM:`` left out)."""
+    sent = recording(monkeypatch)
     run()
     monkeypatch.undo()
     return [text for text in sent if not text.startswith("SIM:")]
@@ -95,7 +101,7 @@ def test_a_counter_whose_connection_was_opened_again_mid_run_is_configured_again
 
     counter = bench.station.counter()
     state: dict = {"last": None, "reopened_at": None}
-    sent: list[str] = []
+    sent = recording(monkeypatch)
 
     def on_event(event) -> None:
         if event.source == "counter" and event.name == events.BEFORE_FETCH:
@@ -108,18 +114,6 @@ def test_a_counter_whose_connection_was_opened_again_mid_run_is_configured_again
 
     for driver in bench.station.drivers.values():
         driver.events.subscribe(on_event)
-    real_write, real_query = VisaTransport.write, VisaTransport.query
-
-    def write(self, text):
-        sent.append(text)
-        return real_write(self, text)
-
-    def query(self, text):
-        sent.append(text)
-        return real_query(self, text)
-
-    monkeypatch.setattr(VisaTransport, "write", write)
-    monkeypatch.setattr(VisaTransport, "query", query)
     outcome = bench.test("PW22-000505")
     monkeypatch.undo()
     assert outcome.verdict == "pass"

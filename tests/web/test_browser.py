@@ -9,31 +9,17 @@ browser fails there).
 
 from __future__ import annotations
 
-import os
-import shutil
 import time
-from pathlib import Path
 
 import pytest
 
 from fixture.runner.ownership import hold_station
 from fixture.store import open_store
+from tests.web.browser import chromium, shot
 from tests.web.serving import BAD_SERIAL, GOOD_SERIAL, SECOND_SERIAL, USERS, live_server, served_app, state_of
 
-CHROMIUM = "/usr/bin/chromium"
-ARTIFACTS = Path(__file__).resolve().parent / "artifacts"
 #: how long a page may take to show what a test waits for (a whole simulated unit is ~2 s at this pace)
 WAIT_MS = 60_000
-
-if not Path(CHROMIUM).exists() or shutil.which("chromium") is None:
-    if os.environ.get("KNOBLINE_REQUIRE_BROWSER"):
-        pytest.fail(f"KNOBLINE_REQUIRE_BROWSER is set but {CHROMIUM} is missing (apt-get install chromium)",
-                    pytrace=False)
-    pytest.skip(f"no {CHROMIUM} (apt-get install chromium); set KNOBLINE_REQUIRE_BROWSER to fail instead",
-                allow_module_level=True)
-
-sync_api = pytest.importorskip("playwright.sync_api") if not os.environ.get("KNOBLINE_REQUIRE_BROWSER") else \
-    __import__("playwright.sync_api", fromlist=["sync_playwright"])
 
 
 @pytest.fixture(scope="module")
@@ -45,13 +31,8 @@ def server(tmp_path_factory):
 
 @pytest.fixture(scope="module")
 def browser():
-    ARTIFACTS.mkdir(exist_ok=True)
-    with sync_api.sync_playwright() as p:
-        launched = p.chromium.launch(executable_path=CHROMIUM, args=["--no-sandbox"])
-        try:
-            yield launched
-        finally:
-            launched.close()
+    with chromium() as launched:
+        yield launched
 
 
 @pytest.fixture
@@ -65,10 +46,6 @@ def page(browser):
         yield opened
     finally:
         context.close()
-
-
-def shot(page, name: str) -> None:
-    page.screenshot(path=str(ARTIFACTS / f"{name}.png"), full_page=True)
 
 
 def log_in(page, server, role: str) -> None:

@@ -8,8 +8,6 @@ each page go to ``tests/web/artifacts/`` (``2x-*.png``). Skipped only when chrom
 
 from __future__ import annotations
 
-import os
-import shutil
 from pathlib import Path
 
 import pytest
@@ -19,21 +17,10 @@ from fixture.web import quality_pages
 from fixture.web.app import WebSettings, build_app
 from tests.quality_demo import demo_database
 from tests.web.pages import PASSWORD, USERS, add_users
+from tests.web.browser import chromium, shot
 from tests.web.serving import live_server
 
-CHROMIUM = "/usr/bin/chromium"
-ARTIFACTS = Path(__file__).resolve().parent / "artifacts"
 WAIT_MS = 30_000
-
-if not Path(CHROMIUM).exists() or shutil.which("chromium") is None:
-    if os.environ.get("KNOBLINE_REQUIRE_BROWSER"):
-        pytest.fail(f"KNOBLINE_REQUIRE_BROWSER is set but {CHROMIUM} is missing (apt-get install chromium)",
-                    pytrace=False)
-    pytest.skip(f"no {CHROMIUM} (apt-get install chromium); set KNOBLINE_REQUIRE_BROWSER to fail instead",
-                allow_module_level=True)
-
-sync_api = pytest.importorskip("playwright.sync_api") if not os.environ.get("KNOBLINE_REQUIRE_BROWSER") else \
-    __import__("playwright.sync_api", fromlist=["sync_playwright"])
 
 
 @pytest.fixture(scope="module")
@@ -47,22 +34,13 @@ def server(tmp_path_factory):
 
 @pytest.fixture
 def page(server):
-    ARTIFACTS.mkdir(exist_ok=True)
-    with sync_api.sync_playwright() as p:
-        browser = p.chromium.launch(executable_path=CHROMIUM, args=["--no-sandbox"])
+    with chromium() as browser:
         context = browser.new_context(viewport={"width": 1280, "height": 900}, accept_downloads=True)
         opened = context.new_page()
         errors: list[str] = []
         opened.on("pageerror", lambda e: errors.append(str(e)))
         opened.errors = errors
-        try:
-            yield opened
-        finally:
-            browser.close()
-
-
-def shot(page, name: str) -> None:
-    page.screenshot(path=str(ARTIFACTS / f"{name}.png"), full_page=True)
+        yield opened
 
 
 def log_in(page, server, role: str) -> None:

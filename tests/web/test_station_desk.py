@@ -153,23 +153,27 @@ def test_a_server_stopping_mid_run_ends_the_run_aborted_in_the_store(tmp_path) -
         assert store.runs(limit=1)[0].verdict == "aborted"
 
 
+class RaisingTester:
+    """A tester whose every run raises ``error`` (a bug, a station fault) before any step."""
+
+    def __init__(self, name: str, error: Exception) -> None:
+        self.name, self.error = name, error
+
+    def lot_parts(self):
+        return []
+
+    def traveller_note(self):
+        return None
+
+    def check(self, serial, lots):
+        return lots
+
+    def run(self, serial, lots, operator, reporter, stop):
+        raise self.error
+
+
 def test_a_tester_that_breaks_ends_the_run_a_station_fault_on_the_page(tmp_path) -> None:
-    class Broken:
-        name = "broken bench"
-
-        def lot_parts(self):
-            return []
-
-        def traveller_note(self):
-            return None
-
-        def check(self, serial, lots):
-            return lots
-
-        def run(self, serial, lots, operator, reporter, stop):
-            raise RuntimeError("a bug")
-
-    desk = StationDesk(Broken())
+    desk = StationDesk(RaisingTester("broken bench", RuntimeError("a bug")))
     end = _finish(desk, desk.start(GOOD_SERIAL, {}, "olwen.test"))
     assert end["verdict"] == "station-fault" and "RuntimeError: a bug" in end["why"]
 
@@ -177,22 +181,7 @@ def test_a_tester_that_breaks_ends_the_run_a_station_fault_on_the_page(tmp_path)
 def test_a_message_with_control_or_override_characters_reaches_the_page_shown_not_obeyed(tmp_path) -> None:
     from fixture.errors import InstrumentFault
 
-    class Hostile:
-        name = "bench"
-
-        def lot_parts(self):
-            return []
-
-        def traveller_note(self):
-            return None
-
-        def check(self, serial, lots):
-            return lots
-
-        def run(self, serial, lots, operator, reporter, stop):
-            raise InstrumentFault("counter said \u202eTLUAF\u202c \x1b[31mred\x1b[0m")
-
-    desk = StationDesk(Hostile())
+    desk = StationDesk(RaisingTester("bench", InstrumentFault("counter said \u202eTLUAF\u202c \x1b[31mred\x1b[0m")))
     end = _finish(desk, desk.start(GOOD_SERIAL, {}, "olwen.test"))
     # Unicode TR 9: U+202E/U+202C reorder what follows; ECMA-48: ESC starts a terminal control sequence
     assert "\u202e" not in end["why"] and "\x1b" not in end["why"]
